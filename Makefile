@@ -1,0 +1,36 @@
+# Two commands do all the set-up: `make demo` and `make test`.
+# Both create or refresh .venv/ from the pinned lock (requirements.lock) first.
+PYTHON ?= python3
+VENV := .venv
+BIN := $(VENV)/bin
+STAMP := $(VENV)/.installed
+
+.PHONY: venv demo test lint lock clean
+
+venv: $(STAMP)
+
+$(STAMP): requirements.lock pyproject.toml
+	test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --disable-pip-version-check "uv==0.13.9"
+	$(BIN)/uv pip sync --quiet --python $(BIN)/python requirements.lock
+	$(BIN)/uv pip install --quiet --python $(BIN)/python --no-deps -e .
+	touch $(STAMP)
+
+demo: $(STAMP)
+	$(BIN)/snakemake --profile profiles/default
+	@echo "Tables:   results/demo/tables/"
+	@echo "Figures:  results/demo/figures/"
+	@echo "Manifest: results/demo/manifest.json"
+
+test: $(STAMP)
+	$(BIN)/python -m pytest -q
+
+lint: $(STAMP)
+	$(BIN)/ruff check src tests
+
+# Regenerate the lock after editing requirements.in (needs the venv's uv).
+lock: $(STAMP)
+	$(BIN)/uv pip compile --quiet --python $(BIN)/python requirements.in -o requirements.lock
+
+clean:
+	rm -rf $(VENV) .snakemake results

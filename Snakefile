@@ -1,0 +1,33 @@
+# floeheat: upper-ocean heat budgets under drifting sea ice.
+# Archive (format version 1) -> per-deployment budgets -> basin-wide tables.
+# Run from the repository root with the project's .venv active:
+#   snakemake --profile profiles/default [--config archive=PATH results=PATH]
+from snakemake.utils import min_version, validate
+
+min_version("9.0")
+
+
+configfile: "config/config.yaml"
+
+
+validate(config, "workflow/schemas/config.schema.yaml", set_default=True)
+
+
+include: "workflow/rules/common.smk"
+include: "workflow/rules/archive.smk"
+include: "workflow/rules/insitu.smk"
+include: "workflow/rules/scenes.smk"
+include: "workflow/rules/forcing.smk"
+include: "workflow/rules/budget.smk"
+include: "workflow/rules/tables.smk"
+include: "workflow/rules/figures.smk"
+
+
+rule all:
+    input:
+        f"{RESULTS}/tables/seasonal.csv",
+        f"{RESULTS}/tables/climatology.csv",
+        f"{RESULTS}/tables/failures.csv",
+        f"{RESULTS}/figures",
+        f"{RESULTS}/manifest.json",
+    default_target: True

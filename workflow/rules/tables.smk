@@ -1,0 +1,42 @@
+# Basin-wide tables and the run record.
+
+
+rule tables:
+    input:
+        budgets=all_stage_status("budget"),
+        rejected=f"{RESULTS}/index/rejected.csv",
+    output:
+        seasonal=f"{RESULTS}/tables/seasonal.csv",
+        climatology=f"{RESULTS}/tables/climatology.csv",
+        failures=f"{RESULTS}/tables/failures.csv",
+        windows=f"{RESULTS}/tables/windows.csv",
+    params:
+        climatology=config["climatology"],
+    log:
+        f"{RESULTS}/logs/tables.log",
+    threads: 1
+    resources:
+        mem_mb=1000,
+        runtime=20,
+    script:
+        "../scripts/tables.py"
+
+
+rule manifest:
+    input:
+        seasonal=f"{RESULTS}/tables/seasonal.csv",
+        climatology=f"{RESULTS}/tables/climatology.csv",
+        failures=f"{RESULTS}/tables/failures.csv",
+        figures=f"{RESULTS}/figures",
+        budgets=all_stage_status("budget"),
+    output:
+        manifest=f"{RESULTS}/manifest.json",
+    params:
+        archive=ARCHIVE,
+        results=RESULTS,
+        config=config,
+    log:
+        f"{RESULTS}/logs/manifest.log",
+    threads: 1
+    script:
+        "../scripts/manifest.py"

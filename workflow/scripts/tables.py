@@ -1,0 +1,9 @@
+"""Adapter of rule tables: seasonal, climatology and failures tables."""
+from floeheat.steps.tables import run_tables
+from floeheat.steps.status import setup_logging
+
+sm = snakemake  # noqa: F821 (injected by Snakemake)
+setup_logging(sm.log[0])
+run_tables(list(sm.input.budgets), sm.input.rejected, sm.output.seasonal,
+           sm.output.climatology, sm.output.failures, sm.output.windows,
+           climatology=dict(sm.params.climatology))

@@ -35,6 +35,8 @@ __all__ = [
     "assemble_budget",
     "seasonal_table",
     "window_table",
+    "season_bounds",
+    "analysis_window",
 ]
 
 _MJ = 1.0e-6
@@ -616,3 +618,89 @@ def window_table(budget: xr.Dataset) -> pd.DataFrame:
     df = budget[list(names)].to_dataframe().reset_index().rename(
         columns={**names, "radius": "radius_m"})
     return df[cols]
+
+
+def season_bounds(season: dict, reference_time) -> tuple[pd.Timestamp, pd.Timestamp]:
+    """The configured season (month-day start and end, UTC) that holds a reference time.
+
+    A season whose end month-day comes before its start runs across the year boundary
+    (the southern default, 1 November to 1 April).
+
+    Parameters
+    ----------
+    season : dict
+        ``{"start": "MM-DD", "end": "MM-DD"}`` (end exclusive, at 00:00 UTC).
+    reference_time : datetime-like
+        A time inside the data (e.g. the median instrument time).
+
+    Returns
+    -------
+    (pandas.Timestamp, pandas.Timestamp)
+
+    Examples
+    --------
+    >>> season_bounds({"start": "05-01", "end": "10-01"}, "2024-07-10")
+    (Timestamp('2024-05-01 00:00:00'), Timestamp('2024-10-01 00:00:00'))
+    >>> season_bounds({"start": "11-01", "end": "04-01"}, "2025-01-15")
+    (Timestamp('2024-11-01 00:00:00'), Timestamp('2025-04-01 00:00:00'))
+    """
+    ref = pd.Timestamp(reference_time)
+    (sm, sd), (em, ed) = ([int(v) for v in season[k].split("-")] for k in ("start", "end"))
+    if (em, ed) > (sm, sd):
+        return pd.Timestamp(ref.year, sm, sd), pd.Timestamp(ref.year, em, ed)
+    # across the year boundary: the season starting in the reference's year or the one
+    # before, whichever holds it (or is nearer).
+    start = pd.Timestamp(ref.year if (ref.month, ref.day) >= (sm, sd) else ref.year - 1, sm, sd)
+    return start, pd.Timestamp(start.year + 1, em, ed)
+
+
+def analysis_window(start, end, profile_times=None, icemass_times=None,
+                    season: dict | None = None) -> tuple[pd.Timestamp, pd.Timestamp]:
+    """A deployment's analysis window (science.md, "Analysis window").
+
+    The window is the deployment's start and end where given, else the overlap of its
+    profiler and thermistor records (the one record when only one instrument exists),
+    intersected with the configured season.
+
+    Parameters
+    ----------
+    start, end : datetime-like or None
+        From deployments.csv (None when empty).
+    profile_times, icemass_times : array_like of datetime64 or None
+        The instruments' record times.
+    season : dict, optional
+        ``{"start": "MM-DD", "end": "MM-DD"}`` of the deployment's hemisphere.
+
+    Returns
+    -------
+    (pandas.Timestamp, pandas.Timestamp)
+
+    Raises
+    ------
+    ValueError
+        When the window is empty (records that do not overlap, or lie outside the season).
+
+    Examples
+    --------
+    >>> p = np.array(["2024-04-20", "2024-08-01"], dtype="datetime64[ns]")
+    >>> i = np.array(["2024-04-25", "2024-09-20"], dtype="datetime64[ns]")
+    >>> analysis_window(None, None, p, i, {"start": "05-01", "end": "10-01"})
+    (Timestamp('2024-05-01 00:00:00'), Timestamp('2024-08-01 00:00:00'))
+    """
+    records = [np.asarray(t, dtype="datetime64[ns]") for t in (profile_times, icemass_times)
+               if t is not None and np.size(t)]
+    lo = max((pd.Timestamp(np.nanmin(t)) for t in records), default=None)
+    hi = min((pd.Timestamp(np.nanmax(t)) for t in records), default=None)
+    w0 = pd.Timestamp(start) if start is not None else lo
+    w1 = pd.Timestamp(end) if end is not None else hi
+    if w0 is None or w1 is None:
+        raise ValueError("no analysis window: give start and end in deployments.csv or "
+                         "provide instrument records")
+    if season is not None:
+        s0, s1 = season_bounds(season, w0 + (w1 - w0) / 2)
+        w0, w1 = max(w0, s0), min(w1, s1)
+    if not w0 < w1:
+        raise ValueError(f"the analysis window is empty ({w0} to {w1}): the instrument "
+                         "records do not overlap each other or the season; check start/end "
+                         "in deployments.csv or the season in the config")
+    return w0, w1

@@ -26,7 +26,6 @@ checkpoint index:
         rejected=f"{RESULTS}/index/rejected.csv",
     params:
         archive=ARCHIVE,
-        season=config["season"],
     log:
         f"{RESULTS}/logs/index.log",
     script:

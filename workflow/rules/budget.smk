@@ -13,11 +13,10 @@ rule budget:
         status=f"{RESULTS}/deployments/{{deployment}}/status/budget.json",
     params:
         row=get_sheet_row,
-        season=config["season"],
         radar_max_gap_days=config["radar"]["max_gap_days"],
         microwave=config["microwave"],
         budget=config["budget"],
-        ice=config["ice"],
+        radar_radii_m=config["radar"]["radii_m"],
     log:
         f"{RESULTS}/logs/budget/{{deployment}}.log",
     threads: 1

@@ -13,6 +13,7 @@ rule insitu:
         track=config["track"],
         ice=config["ice"],
         storage=config["storage"],
+        season=config["season"],
     log:
         f"{RESULTS}/logs/insitu/{{deployment}}.log",
     threads: 1

@@ -6,6 +6,6 @@ sm = snakemake  # noqa: F821 (injected by Snakemake)
 setup_logging(sm.log[0])
 run_budget(dict(sm.params.row), sm.input.insitu, sm.input.radar, sm.input.shortwave,
            sm.input.concentration, list(sm.input.shortwave_csv), sm.output.status,
-           season=dict(sm.params.season), radar_max_gap_days=sm.params.radar_max_gap_days,
+           radar_max_gap_days=sm.params.radar_max_gap_days,
            microwave=dict(sm.params.microwave), budget=dict(sm.params.budget),
-           ice=dict(sm.params.ice))
+           radar_radii_m=list(sm.params.radar_radii_m))

@@ -6,4 +6,4 @@ sm = snakemake  # noqa: F821 (injected by Snakemake)
 setup_logging(sm.log[0])
 run_insitu(sm.params.archive, dict(sm.params.row), sm.output.status,
            track=dict(sm.params.track), ice=dict(sm.params.ice),
-           storage=dict(sm.params.storage))
+           storage=dict(sm.params.storage), season=dict(sm.params.season))

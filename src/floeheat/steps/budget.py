@@ -1,0 +1,242 @@
+"""Stage ``budget``: one deployment's budget terms into ``budget.zarr``.
+
+Samples the shortwave store (or the deployment's own CSV series) and the concentration
+store along the track, builds f_ow per source and radius on the forcing intervals,
+assembles the budget (:func:`floeheat.budget.assemble_budget`) and writes the store of
+the output contract plus the deployment's seasonal rows and window records.
+"""
+
+from __future__ import annotations
+
+import json
+import logging
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import xarray as xr
+
+from floeheat import ARCHIVE_FORMAT_VERSION, __version__
+from floeheat.budget import assemble_budget, seasonal_table, window_table
+from floeheat.climatology import WINDOW_COLUMNS
+from floeheat.io.gridded import read_shortwave_csv
+from floeheat.microwave import fraction_at_buoys, interpolate_daily
+from floeheat.openwater import radar_time_series
+from floeheat.shortwave import sample_at_tracks
+from floeheat.steps.scenes import position_at, read_track
+from floeheat.steps.status import StageFailed, atomic_path, read_status, run_stage
+
+__all__ = ["run_budget", "radar_fraction_series", "microwave_fraction_series",
+           "shortwave_at_track", "write_budget_store"]
+
+log = logging.getLogger(__name__)
+
+_DAY = np.timedelta64(1, "D")
+
+
+def _open_store(path: str) -> xr.Dataset | None:
+    ds = xr.open_zarr(path, consolidated=True)
+    return None if ds.attrs.get("absent") else ds
+
+
+def _midpoints(time_bnds) -> np.ndarray:
+    b = np.asarray(time_bnds, dtype="datetime64[ns]")
+    return b[:, 0] + (b[:, 1] - b[:, 0]) / 2
+
+
+def shortwave_at_track(store: xr.Dataset, track: pd.DataFrame, start, end) -> xr.Dataset:
+    """Shortwave at the buoy from the gridded store, on the intervals overlapping the window."""
+    bnds = store["time_bnds"].values
+    keep = (bnds[:, 1] > np.datetime64(start)) & (bnds[:, 0] < np.datetime64(end))
+    if not keep.any():
+        raise StageFailed(f"the gridded shortwave does not cover the analysis window {start} "
+                          f"to {end}; add shortwave files for that period")
+    sub = store.isel(time=np.flatnonzero(keep))
+    lat, lon, _, _ = position_at(track, _midpoints(sub["time_bnds"].values), "EPSG:4326")
+    lat_da = xr.DataArray(lat, dims="time", coords={"time": sub["time"].values})
+    lon_da = xr.DataArray(lon, dims="time", coords={"time": sub["time"].values})
+    out = sample_at_tracks(sub, lat_da, lon_da)
+    return xr.Dataset({"sw_down": ("time", out["sw_down"].values[0], {"units": "W m-2"}),
+                       "time_bnds": (("time", "nv"), out["time_bnds"].values)},
+                      coords={"time": out["time"].values})
+
+
+def radar_fraction_series(fractions_csv: str, target_time, radii_m, max_gap_days: float
+                          ) -> xr.DataArray | None:
+    """Radar f_ow(time, radius) at ``target_time`` from the per-scene table."""
+    table = pd.read_csv(fractions_csv, parse_dates=["time"])
+    if table.empty:
+        return None
+    table["value"] = table["f_ow"].where(table["accepted"].astype(bool))
+    wide = table.pivot_table(index=["time", "scene_id"], columns="radius_m", values="value",
+                             dropna=False, aggfunc="first").reindex(columns=sorted(radii_m))
+    times = wide.index.get_level_values("time").tz_localize(None).values
+    return radar_time_series(times, wide.to_numpy(float), target_time, sorted(radii_m),
+                             max_gap=pd.Timedelta(days=max_gap_days))
+
+
+def microwave_fraction_series(store: xr.Dataset, track: pd.DataFrame, start, end,
+                              target_time, settings: dict) -> xr.DataArray | None:
+    """Microwave f_ow(time, radius) at ``target_time`` (daily values linear between
+    their interval midpoints)."""
+    bnds = store["time_bnds"].values
+    keep = (bnds[:, 1] > np.datetime64(start) - _DAY) & (bnds[:, 0] < np.datetime64(end) + _DAY)
+    if not keep.any():
+        return None
+    sub = store.isel(time=np.flatnonzero(keep))
+    mid = _midpoints(sub["time_bnds"].values)
+    lat, lon, _, _ = position_at(track, mid, "EPSG:4326")
+    ok = np.isfinite(lat)
+    if not ok.any():
+        return None
+    sub = sub.isel(time=np.flatnonzero(ok))
+    daily = fraction_at_buoys(sub, lat[ok], lon[ok], radii_m=sorted(settings["radii_m"]),
+                              method=settings["method"])
+    return interpolate_daily(daily, target_time)
+
+
+def _combine(series: dict[str, xr.DataArray], target_time) -> xr.DataArray:
+    radii = sorted({float(r) for da in series.values() for r in da["radius"].values})
+    parts = []
+    for source, da in series.items():
+        da = da.drop_vars([c for c in da.coords if c not in ("time", "radius")])
+        da = da.assign_coords(time=target_time).reindex(radius=radii)
+        parts.append(da.expand_dims(source=[source]))
+    return xr.concat(parts, dim="source").transpose("time", "source", "radius")
+
+
+def write_budget_store(ds: xr.Dataset, path: Path) -> None:
+    """Write the budget Dataset as a consolidated Zarr (format 3) store, atomically.
+
+    String variables (per-source reasons) go to attributes; every chunk spans the whole
+    series (the store is read whole, by figures and tables).
+    """
+    ds = ds.copy()
+    for name in list(ds.data_vars):
+        if ds[name].dtype.kind in "UOS":
+            ds.attrs[name] = json.dumps(
+                {f"{s}/{float(r):g}": str(ds[name].sel(source=s, radius=r).item())
+                 for s in ds["source"].values for r in ds["radius"].values}
+                if set(ds[name].dims) == {"source", "radius"} else ds[name].values.tolist())
+            ds = ds.drop_vars(name)
+        elif ds[name].dtype == bool:
+            ds[name] = ds[name].astype("int8")
+    ds["source"] = ds["source"].astype(str)
+    for var in ds.variables.values():
+        var.encoding = {}
+    with atomic_path(path) as tmp:
+        ds.to_zarr(tmp, zarr_format=3, consolidated=True, mode="w")
+
+
+def _windows(ds: xr.Dataset, track: pd.DataFrame, row: dict) -> pd.DataFrame:
+    w = window_table(ds)
+    if w.empty:
+        return pd.DataFrame(columns=list(WINDOW_COLUMNS))
+    mid = w["window_start"] + (w["window_end"] - w["window_start"]) / 2
+    lat, lon, _, _ = position_at(track, mid.values, "EPSG:4326")
+    w["latitude"], w["longitude"] = lat, lon
+    w["deployment_id"] = row["deployment_id"]
+    w["array_id"] = row.get("array_id") or row["deployment_id"]
+    w["ice_type"] = row.get("ice_type") or ""
+    # energies of each window from its shares (budget.window_table defines them)
+    w["sw_down_MJ"] = w["sw_total_MJ"]
+    w["q_ow_MJ"] = w["share_ow"] * w["sw_total_MJ"]
+    w["q_tr_MJ"] = w["share_tr"] * w["sw_total_MJ"]
+    entered = w["q_ow_MJ"] + w["q_tr_MJ"]
+    w["q_st_MJ"] = w["share_stored"] * entered
+    w["q_w_MJ"] = w["share_to_ice"] * entered
+    return w[list(WINDOW_COLUMNS)]
+
+
+def _work(row: dict, insitu: dict, radar: dict | None, shortwave_store: str,
+          concentration_store: str, shortwave_csv: list[str], out_dir: Path, work_dir: Path,
+          radar_max_gap_days: float, microwave: dict, budget: dict, provenance: dict) -> dict:
+    dep = row["deployment_id"]
+    start, end = pd.Timestamp(insitu["window_start"]), pd.Timestamp(insitu["window_end"])
+    track = read_track(insitu["track"])
+    if shortwave_csv:
+        sw = read_shortwave_csv(shortwave_csv[0])
+    else:
+        store = _open_store(shortwave_store)
+        if store is None:
+            raise StageFailed(f"deployment {dep} has no shortwave: the archive has no gridded "
+                              "shortwave files and deployments.csv names no shortwave_file")
+        sw = shortwave_at_track(store, track, start, end)
+    bnds = sw["time_bnds"].values
+    inside = (bnds[:, 0] >= np.datetime64(start)) & (bnds[:, 1] <= np.datetime64(end))
+    target = _midpoints(bnds[inside]) if inside.any() else np.array([], "datetime64[ns]")
+    if target.size == 0:
+        raise StageFailed(f"deployment {dep}: no shortwave interval lies inside the analysis "
+                          f"window {start} to {end}")
+
+    series: dict[str, xr.DataArray] = {}
+    radar_radii = provenance["radar_radii_m"]
+    if radar and radar.get("radar_fractions"):
+        f = radar_fraction_series(radar["radar_fractions"], target, radar_radii,
+                                  radar_max_gap_days)
+        if f is not None:
+            series["radar"] = f
+    conc = _open_store(concentration_store)
+    if conc is not None:
+        f = microwave_fraction_series(conc, track, start, end, target, microwave)
+        if f is not None:
+            series["microwave"] = f
+    f_ow = _combine(series, target) if series else None
+
+    storage = xr.open_dataset(insitu["storage"]).load() if insitu.get("storage") else None
+    ice = xr.open_dataset(insitu["ice"]).load() if insitu.get("ice") else None
+    ds = assemble_budget(
+        sw.isel(time=np.flatnonzero(inside)), start, end, f_ow=f_ow, storage=storage, ice=ice,
+        albedo_ow=budget["albedo_ow"], window_days=budget["window_days"],
+        weight_by_ice_fraction=budget["weight_by_ice_fraction"], deployment_id=dep)
+    ds.attrs.update({
+        "deployment_id": dep, "array_id": row.get("array_id") or "",
+        "window_start": str(start), "window_end": str(end),
+        "floeheat_version": __version__, "archive_format_version": ARCHIVE_FORMAT_VERSION,
+        "radar_input": "mask", "settings": json.dumps(provenance["settings"], sort_keys=True),
+    })
+    store_path = out_dir / "budget.zarr"
+    write_budget_store(ds, store_path)
+
+    wanted = {("radar", float(r)) for r in radar_radii} | \
+        {("microwave", float(r)) for r in microwave["radii_m"]}
+    seasonal = seasonal_table(ds, deployment_id=dep, array_id=row.get("array_id") or "")
+    seasonal = seasonal[[(s, float(r)) in wanted for s, r in
+                         zip(seasonal["source"], seasonal["radius_m"])]]
+    windows = _windows(ds, track, row)
+    windows = windows[[(s, float(r)) in wanted for s, r in
+                       zip(windows["source"], windows["radius_m"])]]
+    paths = {"seasonal": work_dir / "seasonal.csv", "windows": work_dir / "windows.csv"}
+    for key, table in (("seasonal", seasonal), ("windows", windows)):
+        with atomic_path(paths[key]) as tmp:
+            table.to_csv(tmp, index=False, float_format="%.10g", lineterminator="\n")
+    return {"budget_zarr": str(store_path), "seasonal": str(paths["seasonal"]),
+            "windows": str(paths["windows"]), "track": insitu["track"],
+            "radar_fractions": (radar or {}).get("radar_fractions", ""),
+            "sources": sorted(series)}
+
+
+def run_budget(row: dict, insitu_status: str, radar_status: str, shortwave_store: str,
+               concentration_store: str, shortwave_csv: list[str], status_path: str, *,
+               radar_max_gap_days: float, microwave: dict, budget: dict,
+               radar_radii_m: list[float]) -> dict:
+    """Run the stage for one deployment and write its status record."""
+    status = Path(status_path)
+    out_dir = status.parent.parent
+    work_dir = out_dir / "work"
+    settings = {"radar_max_gap_days": radar_max_gap_days, "microwave": microwave,
+                "budget": budget, "radar_radii_m": list(radar_radii_m)}
+
+    def work() -> dict:
+        insitu = read_status(insitu_status)
+        radar = read_status(radar_status)
+        if not radar.get("ok"):
+            log.warning("radar stage failed (%s); the budget goes on without it",
+                        radar.get("message"))
+            radar = None
+        return _work(row, insitu, radar, shortwave_store, concentration_store, shortwave_csv,
+                     out_dir, work_dir, radar_max_gap_days, microwave, budget,
+                     {"radar_radii_m": list(radar_radii_m), "settings": settings})
+
+    return run_stage("budget", row["deployment_id"], status, work,
+                     upstream=[Path(insitu_status)])

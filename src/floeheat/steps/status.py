@@ -84,6 +84,8 @@ def setup_logging(log_path: str | os.PathLike | None) -> None:
         handlers = [logging.FileHandler(log_path, mode="w")]
     logging.basicConfig(level=logging.INFO, handlers=handlers, force=True,
                         format="%(levelname)s %(name)s: %(message)s")
+    # the units registry announces every unit it redefines at import: not news to a user
+    logging.getLogger("pint").setLevel(logging.ERROR)
 
 
 def run_stage(stage: str, deployment_id: str, status_path: Path,

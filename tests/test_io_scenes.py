@@ -1,0 +1,109 @@
+"""floeheat.io.scenes: windowed reads of GeoTIFF and NetCDF radar scenes."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import rasterio
+from rasterio.windows import Window
+
+import variant_files as vf
+from floeheat.errors import ArchiveError
+from floeheat.io.scenes import open_scene
+
+
+class _Recorder:
+    """Wraps a rasterio dataset and records the windows of every read."""
+
+    def __init__(self, src):
+        self._src, self.windows = src, []
+
+    def read(self, *args, window=None, **kwargs):
+        self.windows.append(window)
+        return self._src.read(*args, window=window, **kwargs)
+
+    def __getattr__(self, name):
+        return getattr(self._src, name)
+
+
+def test_geotiff_backscatter_window_matches_full_read(tmp_path):
+    path = vf.scene_tiff(tmp_path / "s.tif")
+    with open_scene(path, "backscatter") as scene:
+        assert scene.shape == (64, 80)
+        assert scene.bands == ("HH", "HV", "incidence_angle", "noise_equivalent_sigma0_HH",
+                               "noise_equivalent_sigma0_HV")
+        assert scene.noise == {"HH": "noise_equivalent_sigma0_HH",
+                               "HV": "noise_equivalent_sigma0_HV"}
+        assert scene.units["HV"] == "dB" and scene.units["incidence_angle"] == "degree"
+        assert scene.transform == vf.SCENE_TRANSFORM
+        assert scene.crs.to_epsg() == 3413
+        assert scene.time == np.datetime64("2020-06-01T06:30", "ns")
+        full = scene.read_window(slice(None), slice(None), band="HV")
+        win = scene.read_window(slice(17, 33), slice(40, 41), band="HV")
+        np.testing.assert_array_equal(win, full[17:33, 40:41])
+        assert win[0, 0] == 2e4 + 17 * 100 + 40
+        db = np.array([[-10.0, -20.0]], "float32")
+        np.testing.assert_allclose(scene._rescale(db, "HH", "linear"), [[0.1, 0.01]],
+                                   rtol=1e-6)
+        np.testing.assert_array_equal(scene._rescale(db, "HH", "stored"), db)
+
+
+def test_geotiff_reads_only_the_window(tmp_path):
+    path = vf.scene_tiff(tmp_path / "s.tif", tile=16)
+    with open_scene(path, "backscatter") as scene:
+        scene._src = recorder = _Recorder(scene._src)
+        got = scene.read_window(slice(20, 30), slice(35, 47), band="HH")
+    assert recorder.windows == [Window(35, 20, 12, 10)]
+    with rasterio.open(path) as src:
+        # The same window read by rasterio itself, and the blocks it lies in.
+        np.testing.assert_array_equal(got, src.read(1, window=Window(35, 20, 12, 10)))
+        blocks = {ij for ij, w in src.block_windows(1) if _overlaps(w, recorder.windows[0])}
+    assert blocks == {(1, 2)}  # one 16 x 16 tile of the 4 x 5 holds the whole window
+
+
+def _overlaps(a, b):
+    return (a.col_off < b.col_off + b.width and b.col_off < a.col_off + a.width
+            and a.row_off < b.row_off + b.height and b.row_off < a.row_off + a.height)
+
+
+def test_geotiff_without_descriptions_takes_table_bands(tmp_path):
+    path = vf.scene_tiff(tmp_path / "s.tif", bands=("VV",), extra=False, describe=False,
+                         units="")
+    with open_scene(path, "backscatter", bands="VV") as scene:
+        assert scene.polarisations == ("VV",) and scene.units["VV"] == "1"
+    path = vf.scene_tiff(tmp_path / "t.tif", extra=False)
+    with pytest.raises(ArchiveError, match=r"t\.tif: bands: the scene table lists 'VV'"):
+        open_scene(path, "backscatter", bands="VV")
+
+
+def test_geotiff_without_crs(tmp_path):
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        path = vf.scene_tiff(tmp_path / "nocrs.tif", crs=None, extra=False)
+        with pytest.raises(ArchiveError, match=r"nocrs\.tif: the scene has no CRS"):
+            open_scene(path, "backscatter")
+
+
+def test_netcdf_mask_south_up_stored_xy(tmp_path):
+    path = vf.scene_netcdf_mask(tmp_path / "m.nc", codes=(7, 3, 9))
+    codes = {"water": 7, "ice": 3, "nodata": 9}
+    with open_scene(path, "mask", mask_codes=codes) as scene:
+        assert scene.shape == (6, 5) and scene.bands == ("mask",)
+        assert scene.transform.e == 200.0 and scene.transform.f == -1100.0
+        assert scene.transform.c == 0.0 and scene.transform.a == 10.0
+        full = scene.read_window(slice(None), slice(None))
+        assert full.dtype == np.uint8
+        assert set(np.unique(full)) == {0, 1, 255}
+        assert np.all(full[0] == 255) and np.all(full[1:, 0] == 0) and np.all(full[1:, 1:] == 1)
+        np.testing.assert_array_equal(scene.read_window(slice(1, 4), slice(0, 2)),
+                                      full[1:4, 0:2])
+        x, y = scene.transform @ (0.5, 0.5)  # the centre of pixel (row 0, col 0)
+        assert (x, y) == (5.0, -1000.0)
+
+
+def test_netcdf_scene_without_crs(tmp_path):
+    path = vf.scene_netcdf_mask(tmp_path / "m.nc", with_crs=False)
+    with pytest.raises(ArchiveError, match=r"m\.nc: the scene has no CRS"):
+        open_scene(path, "mask")

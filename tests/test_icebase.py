@@ -157,3 +157,21 @@ def test_basal_melt_energy_properties(zb, e, lam):
                                                                      abs=1e-3)
     # closed form for constant e (science.md): e (z_b(t0) - z_b(t))
     assert q == pytest.approx(e * (zb[0] - np.array(zb)), rel=1e-9, abs=1e-3)
+
+
+def test_interface_meets_the_freezing_point_when_the_mixed_layer_is_warmer():
+    # Interface condition (science.md, "Ice bottom and conduction"): the ice base is at
+    # the freezing point of the water below, while the mixed layer may be warmer. A
+    # linear ice profile (-1 K m-1) reaching -1.8 degC at 1.5 m over water at -1.75 degC:
+    # the pick must land on 1.5 m when the freezing temperature is given (analytic
+    # geometry).
+    from floeheat.icebase import find_ice_bottom
+
+    z = np.arange(0.0, 3.0, 0.05)
+    prof = np.where(z <= 1.5, -0.3 + (-1.8 + 0.3) * z / 1.5, -1.75)
+    T = xr.DataArray(np.tile(prof, (4, 1)), dims=("time", "sensor"))
+    with_tf = find_ice_bottom(T, z, freezing_temperature_degC=-1.8).z_b.values
+    without = find_ice_bottom(T, z).z_b.values
+    np.testing.assert_allclose(with_tf, 1.5, atol=1e-6)
+    # without it the line is cut at the (warmer) water temperature: 0.05 K / 1 K m-1 high
+    np.testing.assert_allclose(without, 1.5 - 0.05, atol=1e-6)

@@ -212,6 +212,7 @@ def find_ice_bottom(
     water_spread_K: float = 0.15,
     heated_rise: xr.DataArray | None = None,
     rise_factor: float = 1.5,
+    freezing_temperature_degC=None,
 ) -> xr.Dataset:
     """Ice-ocean interface per time step (unsmoothed), in the string's frame.
 
@@ -220,10 +221,12 @@ def find_ice_bottom(
     the ice sensor is the deeper of the deepest pair of adjacent sensors both departing
     from T_w by more than ``departure_K``; a least-squares line through the sensors
     within ``span_m`` above it (at least 3) must have |dT/dz| >= ``min_gradient_K_m``;
-    the interface is where the line meets T_w, kept between the ice sensor and the
-    shallowest water sensor; a crossing farther below the ice sensor than
-    2 ``departure_K`` / |dT/dz| plus one sensor spacing is a step, not a gradient, and
-    counts as not found. With ``heated_rise``, the deeper of the deepest pair of
+    the interface is where the line meets the freezing temperature of the water below
+    (``freezing_temperature_degC``: the ice base is at the freezing point, while the
+    mixed layer is usually warmer) or, without it, T_w; it is kept between the ice
+    sensor and the shallowest water sensor; a crossing farther below the ice sensor
+    than (|T_w - target| + 2 ``departure_K``) / |dT/dz| plus one sensor spacing is a
+    step, not a gradient, and counts as not found. With ``heated_rise``, the deeper of the deepest pair of
     adjacent sensors whose rise exceeds ``rise_factor`` times the water sensors' median
     rise marks ice, and the interface is the midpoint to the next sensor; this estimate
     serves where the temperature method finds nothing. Thresholds: common practice,
@@ -240,6 +243,10 @@ def find_ice_bottom(
     heated_rise : xarray.DataArray, optional
         Dims ``(time, sensor)`` [K]; NaN at times without a heating cycle.
     rise_factor : float > 1
+    freezing_temperature_degC : float or array_like (time,), optional
+        In-situ freezing temperature of the water under the ice [degC] (e.g. from the
+        profiles' shallowest salinity, :func:`floeheat.storage.surface_freezing_temperature`);
+        NaN entries fall back to T_w.
 
     Returns
     -------
@@ -262,6 +269,8 @@ def find_ice_bottom(
     tw_out = np.full(nt, np.nan)
     grad = np.full(nt, np.nan)
     src = np.zeros(nt, dtype=np.int8)
+    tf = np.broadcast_to(np.asarray(np.nan if freezing_temperature_degC is None
+                                    else freezing_temperature_degC, dtype=float), (nt,))
     for i in range(nt):
         ok = np.isfinite(t[i])
         if ok.sum() < n_water + 3:
@@ -283,10 +292,11 @@ def find_ice_bottom(
         g, a = _lsq(zv[band], tv[band])
         if not np.isfinite(g) or abs(g) < min_gradient_K_m:
             continue
-        zc = (tw - a) / g
-        # a line reaching the water's temperature far below the ice sensor marks a
-        # step (e.g. air over water-temperature ice), not a gradient: not found
-        if zc - zv[j] > 2.0 * departure_K / abs(g) + (zv[j + 1] - zv[j]):
+        target = tf[i] if np.isfinite(tf[i]) else tw
+        zc = (target - a) / g
+        # a line reaching the target far below the ice sensor marks a step (e.g. air
+        # over water-temperature ice), not a gradient: not found
+        if zc - zv[j] > (abs(tw - target) + 2.0 * departure_K) / abs(g) + (zv[j + 1] - zv[j]):
             continue
         grad[i] = g
         zb[i] = float(np.clip(zc, zv[j], zv[-n_water]))
@@ -735,6 +745,7 @@ def ice_base(
     rho_i_kg_m3: float = C.RHO_ICE_KG_M3,
     latent_heat_J_kg: float = C.LATENT_HEAT_FUSION_J_KG,
     bulk_salinity_ppt: float = 4.0,
+    freezing_temperature_degC=None,
 ) -> xr.Dataset:
     """Ice bottom, top surface, conduction and basal melt energy of one string record.
 
@@ -756,6 +767,10 @@ def ice_base(
         Melt energy rho_i L, or -q of Bitz & Lipscomb 1999 at the water temperature and
         ``bulk_salinity_ppt``.
     rho_i_kg_m3, latent_heat_J_kg, bulk_salinity_ppt : float
+    freezing_temperature_degC : float or xarray.DataArray on ``time``, optional
+        In-situ freezing temperature of the water under the ice [degC]; a DataArray
+        is interpolated to the string's times (held at its end values). See
+        :func:`find_ice_bottom`.
 
     Returns
     -------
@@ -782,7 +797,14 @@ def ice_base(
     clean = mask_bad_sensors(icemass["temperature"])
     temp = despike(clean.temperature)
     rise = icemass["heated_rise"] if "heated_rise" in icemass else None
-    raw = find_ice_bottom(temp, depth, span_m=fit_span_m, heated_rise=rise)
+    tf = freezing_temperature_degC
+    if isinstance(tf, xr.DataArray) and "time" in tf.dims:
+        tf = tf.dropna("time")
+        tf = (np.interp(temp["time"].values.astype("int64"),
+                        tf["time"].values.astype("int64"), tf.values)
+              if tf.sizes["time"] else None)
+    raw = find_ice_bottom(temp, depth, span_m=fit_span_m, heated_rise=rise,
+                          freezing_temperature_degC=tf)
     top_raw = find_top_surface(temp, depth, heated_rise=rise)
     zb_th = smooth_in_time(raw.z_b, smooth_hours)
     z_top = smooth_in_time(top_raw, smooth_hours)

@@ -29,6 +29,7 @@ __all__ = [
     "heat_content",
     "storage_change",
     "heat_storage",
+    "surface_freezing_temperature",
 ]
 
 #: Offset by which z2 is moved up and down for the sensitivity of Q_st (science.md,
@@ -569,3 +570,53 @@ def heat_storage(
     out.attrs.update(z2_method=method, sensitivity_offset_m=offset_m, density=density,
                      saturation_fraction=saturation_fraction)
     return out
+
+
+def surface_freezing_temperature(profiles: xr.Dataset,
+                                 saturation_fraction: float = C.SATURATION_FRACTION
+                                 ) -> xr.DataArray:
+    """In-situ freezing temperature of each profile's shallowest valid sample.
+
+    The ice base sits at the freezing point of the water touching it; this gives that
+    temperature from the profiler, for the thermistor-string interface pick.
+
+    Parameters
+    ----------
+    profiles : xarray.Dataset
+        Canonical profiles (``pressure`` [dbar], ``temperature`` [degC], ``salinity``
+        [1], per-profile ``time``, ``latitude``, ``longitude``).
+    saturation_fraction : float in [0, 1]
+        Air saturation of the water (gsw.t_freezing).
+
+    Returns
+    -------
+    xarray.DataArray
+        ``t_freezing(time)`` [degC, ITS-90], NaN for profiles without a valid sample.
+
+    Examples
+    --------
+    >>> ds = xr.Dataset({"pressure": (("profile", "level"), [[2.0, 10.0]]),
+    ...                  "temperature": (("profile", "level"), [[-1.6, -1.6]]),
+    ...                  "salinity": (("profile", "level"), [[30.0, 31.0]])},
+    ...                 coords={"time": ("profile", np.array(["2024-07-01"], "datetime64[ns]")),
+    ...                         "latitude": ("profile", [85.0]),
+    ...                         "longitude": ("profile", [10.0])})
+    >>> round(float(surface_freezing_temperature(ds)[0]), 3)
+    -1.639
+    """
+    p = np.asarray(profiles["pressure"].values, dtype=float)
+    sp = np.asarray(profiles["salinity"].values, dtype=float)
+    ok = np.isfinite(p) & np.isfinite(sp)
+    first = np.where(ok.any(axis=1), np.argmax(ok, axis=1), 0)
+    rows = np.arange(p.shape[0])
+    p0 = np.where(ok.any(axis=1), p[rows, first], np.nan)
+    sp0 = np.where(ok.any(axis=1), sp[rows, first], np.nan)
+    lat = np.asarray(profiles["latitude"].values, dtype=float)
+    lon = np.asarray(profiles["longitude"].values, dtype=float)
+    sa = gsw.SA_from_SP(sp0, p0, lon, lat)
+    tf = gsw.t_freezing(sa, p0, saturation_fraction)
+    return xr.DataArray(np.asarray(tf, dtype=float), dims=("time",),
+                        coords={"time": profiles["time"].values},
+                        attrs={"units": "degC", "long_name": "in-situ freezing temperature "
+                               "of the shallowest sample",
+                               "standard_name": "freezing_temperature_of_sea_water"})

@@ -22,7 +22,7 @@ from floeheat.errors import ArchiveError
 from floeheat.io.icemass import read_icemass
 from floeheat.io.profiles import read_profiles
 from floeheat.steps.status import StageFailed, atomic_path, run_stage
-from floeheat.storage import heat_storage
+from floeheat.storage import heat_storage, surface_freezing_temperature
 
 __all__ = ["run_insitu", "write_netcdf"]
 
@@ -102,12 +102,17 @@ def _work(archive: Path, row: dict, work_dir: Path, track_cfg: dict, ice_cfg: di
 
     ice = None
     if icemass is not None:
+        # the ice base sits at the freezing point of the water below it (from the
+        # profiler's shallowest salinity where there is one)
+        t_freeze = (surface_freezing_temperature(
+            profiles, saturation_fraction=storage_cfg["saturation_fraction"])
+            if profiles is not None else None)
         ice = icebase.ice_base(
             icemass, smooth_hours=ice_cfg["smooth_hours"], fit_span_m=ice_cfg["fit_span_m"],
             conductivity=ice_cfg["conductivity"], k_ice_W_m_K=ice_cfg["k_ice_W_m_K"],
             latent_heat=ice_cfg["latent_heat"], rho_i_kg_m3=ice_cfg["rho_i_kg_m3"],
             latent_heat_J_kg=ice_cfg["latent_heat_J_kg"],
-            bulk_salinity_ppt=ice_cfg["bulk_salinity"])
+            bulk_salinity_ppt=ice_cfg["bulk_salinity"], freezing_temperature_degC=t_freeze)
         ice_path = work_dir / "ice.nc"
         write_netcdf(ice, ice_path)
         products["ice"] = str(ice_path)

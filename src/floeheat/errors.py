@@ -27,10 +27,10 @@ class ArchiveProblem:
 
     Examples
     --------
-    >>> p = ArchiveProblem("deployments.csv", "row 3, column deployment_id",
-    ...                    "duplicate ID 'B1'", "give every deployment its own ID")
+    >>> p = ArchiveProblem("deployments.csv", "line 3, column deployment_id",
+    ...                    "duplicate ID 'B1'", "give each row an ID")
     >>> str(p)
-    "deployments.csv: row 3, column deployment_id: duplicate ID 'B1'. Fix: give every deployment its own ID."
+    "deployments.csv: line 3, column deployment_id: duplicate ID 'B1'. Fix: give each row an ID."
     """
 
     file: str

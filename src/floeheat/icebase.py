@@ -226,10 +226,10 @@ def find_ice_bottom(
     mixed layer is usually warmer) or, without it, T_w; it is kept between the ice
     sensor and the shallowest water sensor; a crossing farther below the ice sensor
     than (|T_w - target| + 2 ``departure_K``) / |dT/dz| plus one sensor spacing is a
-    step, not a gradient, and counts as not found. With ``heated_rise``, the deeper of the deepest pair of
-    adjacent sensors whose rise exceeds ``rise_factor`` times the water sensors' median
-    rise marks ice, and the interface is the midpoint to the next sensor; this estimate
-    serves where the temperature method finds nothing. Thresholds: common practice,
+    step, not a gradient, and counts as not found. With ``heated_rise``, the deeper of
+    the deepest pair of adjacent sensors whose rise exceeds ``rise_factor`` times the
+    water sensors' median rise marks ice, and the interface is the midpoint to the next
+    sensor; this estimate serves where the temperature method finds nothing. Thresholds: common practice,
     no source.
 
     Parameters
@@ -292,6 +292,20 @@ def find_ice_bottom(
         g, a = _lsq(zv[band], tv[band])
         if not np.isfinite(g) or abs(g) < min_gradient_K_m:
             continue
+        # Sensors below j that still follow the ice line (closer to it than to the
+        # water's temperature) are ice too: walk down while they do, refitting, so
+        # the crossing is extrapolated over at most one sensor spacing.
+        last_water = zv.size - n_water
+        while j + 1 < last_water:
+            k = j + 1
+            if abs(tv[k] - (a + g * zv[k])) >= abs(tv[k] - tw):
+                break
+            j = k
+            band = (zv >= zv[j] - span_m - 1e-9) & (zv <= zv[j])
+            g_new, a_new = _lsq(zv[band], tv[band])
+            if not np.isfinite(g_new) or abs(g_new) < min_gradient_K_m:
+                break
+            g, a = g_new, a_new
         target = tf[i] if np.isfinite(tf[i]) else tw
         zc = (target - a) / g
         # a line reaching the target far below the ice sensor marks a step (e.g. air

@@ -1,6 +1,6 @@
 """Adapter of rule tables: seasonal, climatology and failures tables."""
-from floeheat.steps.tables import run_tables
 from floeheat.steps.status import setup_logging
+from floeheat.steps.tables import run_tables
 
 sm = snakemake  # noqa: F821 (injected by Snakemake)
 setup_logging(sm.log[0])

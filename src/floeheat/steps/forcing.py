@@ -13,7 +13,6 @@ import logging
 from pathlib import Path
 
 import dask
-import numpy as np
 import xarray as xr
 
 from floeheat.io.gridded import open_concentration, open_shortwave

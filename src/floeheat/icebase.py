@@ -229,8 +229,8 @@ def find_ice_bottom(
     step, not a gradient, and counts as not found. With ``heated_rise``, the deeper of
     the deepest pair of adjacent sensors whose rise exceeds ``rise_factor`` times the
     water sensors' median rise marks ice, and the interface is the midpoint to the next
-    sensor; this estimate serves where the temperature method finds nothing. Thresholds: common practice,
-    no source.
+    sensor; this estimate serves where the temperature method finds nothing.
+    Thresholds: common practice, no source.
 
     Parameters
     ----------

@@ -176,3 +176,27 @@ def test_interface_meets_the_freezing_point_when_the_mixed_layer_is_warmer():
     # without it, the walk down the ice sensors still ends on the coldest ice sensor
     # (the crossing with the warmer water temperature is clipped there)
     np.testing.assert_allclose(without, 1.5, atol=1e-6)
+
+
+def test_heating_cycle_pick_wins_where_temperature_cannot_see_the_interface():
+    # Water exactly at the freezing point and an ice base at the freezing point leave no
+    # temperature contrast at the interface; the heating-cycle response (ice heats up
+    # more than water, archive-format.md "heated_temperature_rise") still marks it.
+    # Geometry of the synthetic case only; the thresholds are common practice, no source.
+    from floeheat.icebase import find_ice_bottom
+
+    z = np.arange(0.0, 3.0, 0.05)
+    prof = np.where(z <= 1.5, -0.3 + (-1.8 + 0.3) * z / 1.5, -1.8)
+    # the base at 1.5 m, but the coldest ice is indistinguishable from the water
+    prof = np.where((z > 1.2) & (z <= 1.5), -1.8, prof)
+    # six 3-hourly steps: all within half of HEATED_MAX_GAP of the single cycle
+    time = pd.date_range("2024-07-01", periods=6, freq="3h")
+    T = xr.DataArray(np.tile(prof, (6, 1)), dims=("time", "sensor"), coords={"time": time})
+    rise = np.where(z <= 1.5, 0.8, 0.3)
+    R = np.full((6, z.size), np.nan)
+    R[0] = rise  # one heating cycle at the first step
+    R = xr.DataArray(R, dims=("time", "sensor"), coords={"time": time})
+    out = find_ice_bottom(T, z, heated_rise=R)
+    # the heating pick is the midpoint between the last heated-ice sensor and the next
+    np.testing.assert_allclose(out.z_b.values, 1.525, atol=1e-9)
+    assert (out.source.values == 2).all()

@@ -202,6 +202,28 @@ def _bottom_from_rise(r: np.ndarray, z: np.ndarray, n_water: int, rise_factor: f
     return float(0.5 * (zv[j] + zv[j + 1]))
 
 
+#: Longest gap between heating cycles over which their ice-bottom picks are carried.
+#: Common practice, no source (cycles usually run once or a few times a day).
+HEATED_MAX_GAP = np.timedelta64(36, "h")
+
+
+def _bridge(temperature: xr.DataArray, values: np.ndarray, max_gap) -> np.ndarray:
+    """Linear interpolation of sparse per-step values over gaps up to ``max_gap``."""
+    ok = np.isfinite(values)
+    if ok.sum() < 1 or "time" not in temperature.coords:
+        return values.copy()
+    t = temperature["time"].values.astype("datetime64[ns]").astype(np.int64).astype(float)
+    tk, vk = t[ok], values[ok]
+    out = np.interp(t, tk, vk)
+    nxt = np.searchsorted(tk, t, side="left").clip(0, tk.size - 1)
+    prv = (np.searchsorted(tk, t, side="right") - 1).clip(0, tk.size - 1)
+    gap = max_gap.astype("timedelta64[ns]").astype(np.int64)
+    far = (np.minimum(np.abs(t - tk[nxt]), np.abs(t - tk[prv])) > gap / 2) & \
+        ((tk[nxt] - tk[prv]) > gap)
+    out[far | (t < tk[0] - gap / 2) | (t > tk[-1] + gap / 2)] = np.nan
+    return out
+
+
 def find_ice_bottom(
     temperature: xr.DataArray,
     depth_m,
@@ -320,8 +342,15 @@ def find_ice_bottom(
         r = np.asarray(heated_rise.transpose("time", "sensor").values, dtype=float)[:, order]
         for i in range(nt):
             zh[i] = _bottom_from_rise(r[i], z, n_water, rise_factor)
-        use = (src == 0) & np.isfinite(zh)
-        zb[use] = zh[use]
+        # Heating cycles come once in a while: carry each pick to the steps around it
+        # (linear between cycles up to HEATED_MAX_GAP). Where the temperature pick
+        # strays farther than one sensor spacing from it (water barely above freezing
+        # hides the interface from temperature alone), the heating pick wins.
+        zh_all = _bridge(temperature, zh, HEATED_MAX_GAP)
+        spacing = float(np.median(np.diff(z))) if z.size > 1 else 0.0
+        stray = (src == 1) & np.isfinite(zh_all) & (np.abs(zb - zh_all) > spacing)
+        use = ((src == 0) & np.isfinite(zh_all)) | stray
+        zb[use] = zh_all[use]
         src[use] = 2
     time = temperature["time"] if "time" in temperature.coords else None
     coords = {"time": time} if time is not None else {}

@@ -25,6 +25,12 @@ def snakemake(*args: str, cwd: Path = REPO, check: bool = True) -> subprocess.Co
 
 
 @pytest.fixture(scope="session")
+def run_workflow():
+    """The function that runs the workflow (see :func:`snakemake`)."""
+    return snakemake
+
+
+@pytest.fixture(scope="session")
 def tiny_archive(tmp_path_factory) -> Path:
     """A tiny synthesized archive (seed 1) and its truth folder beside it."""
     root = tmp_path_factory.mktemp("tiny") / "archive"

@@ -111,9 +111,14 @@ def test_changing_a_budget_setting_keeps_every_scene_fraction(tiny_run, tiny_arc
 
 def test_changing_one_deployment_file_reruns_that_chain_only(tiny_run, tiny_archive,
                                                             run_workflow):
+    import netCDF4
+
     sheet = pd.read_csv(tiny_archive / "deployments.csv")
-    target = tiny_archive / sheet["profile_file"].iloc[0]
-    target.touch()
+    nc = sheet[sheet["profile_file"].str.endswith(".nc")]
+    target = tiny_archive / nc["profile_file"].iloc[0]
+    # a real change of content (Snakemake compares input checksums, not only times)
+    with netCDF4.Dataset(target, "a") as ds:
+        ds.comment = "edited after the first run"
     out = run_workflow("-n", "--config", f"archive={tiny_archive}", f"results={tiny_run}").stdout
     jobs = _jobs(out)
     assert jobs.get("insitu") == 1, (jobs, out[-3000:])

@@ -25,7 +25,6 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import xarray as xr
-from scipy import stats
 
 from floeheat import constants as C
 
@@ -199,6 +198,8 @@ def _t_interval(num, den, level=0.90):
     if n < 2:
         return np.nan, np.nan
     a, b = num[ok], den[ok]
+    from scipy import stats  # here: scipy.stats costs a second or two to import
+
     tq = stats.t.ppf(0.5 + level / 2.0, n - 1)
     with np.errstate(all="ignore"):
         r = a.sum() / b.sum()

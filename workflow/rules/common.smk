@@ -53,22 +53,18 @@ def get_sheet_row(wildcards):
     return deployment_row(wildcards.deployment).to_dict()
 
 
-def _matches_of(deployment):
-    matches = pd.read_csv(checkpoints.match_scenes.get().output.matches,
-                          dtype=str, keep_default_na=False)
-    return matches[matches["deployment_id"] == deployment]
-
-
 def get_matched_scenes(wildcards):
-    """Scene files matched to one deployment by checkpoint match_scenes."""
-    paths = sorted(set(_matches_of(wildcards.deployment)["path"]))
-    return [p for path in paths for p in existing(path)]
+    """Scene files matched to one deployment by its match_scenes checkpoint."""
+    path = checkpoints.match_scenes.get(deployment=wildcards.deployment).output.matches
+    matches = pd.read_csv(path, dtype=str, keep_default_na=False)
+    return [p for rel in sorted(set(matches["path"])) for p in existing(rel)]
 
 
-def get_matched_scene_rows(wildcards):
-    """The deployment's matched scenes as plain records (passed as params, so that a
-    change of another deployment's matches does not rerun this one)."""
-    return _matches_of(wildcards.deployment).to_dict(orient="records")
+def get_scene_files(wildcards):
+    """Every scene file of the index (footprints are read from their headers)."""
+    scenes = pd.read_csv(checkpoints.index.get().output.scenes, dtype=str,
+                         keep_default_na=False)
+    return [p for rel in sorted(set(scenes["path"])) for p in existing(rel)]
 
 
 def get_forcing_files(wildcards):

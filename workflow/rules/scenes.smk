@@ -1,24 +1,42 @@
-# Radar scenes: the checkpoint that matches scenes to each deployment's track, and the
-# open-water fractions per deployment, batched over its matched scenes (one job reads
-# only the window of pixels each circle needs from every scene).
+# Radar scenes: footprints read once per run, a per-deployment checkpoint that matches
+# scenes to the track (so the DAG fans out over deployments and their matched scenes),
+# and the open-water fractions per deployment, batched over its matched scenes (one job
+# reads only the window of pixels each circle needs from every scene).
 
 
-checkpoint match_scenes:
+rule scene_footprints:
     input:
         scenes=f"{RESULTS}/index/scenes.csv",
-        insitu=all_stage_status("insitu"),
+        files=get_scene_files,
     output:
-        matches=f"{RESULTS}/index/matches.csv",
+        footprints=f"{RESULTS}/index/footprints.csv",
     params:
         archive=ARCHIVE,
-        radii_m=config["radar"]["radii_m"],
-        coverage_threshold=config["radar"]["coverage_threshold"],
     log:
-        f"{RESULTS}/logs/match_scenes.log",
+        f"{RESULTS}/logs/scene_footprints.log",
     threads: 1
     resources:
         mem_mb=1000,
         runtime=30,
+    script:
+        "../scripts/scene_footprints.py"
+
+
+checkpoint match_scenes:
+    input:
+        footprints=f"{RESULTS}/index/footprints.csv",
+        insitu=f"{RESULTS}/deployments/{{deployment}}/status/insitu.json",
+    output:
+        matches=f"{RESULTS}/deployments/{{deployment}}/matches.csv",
+    params:
+        radii_m=config["radar"]["radii_m"],
+        coverage_threshold=config["radar"]["coverage_threshold"],
+    log:
+        f"{RESULTS}/logs/match_scenes/{{deployment}}.log",
+    threads: 1
+    resources:
+        mem_mb=500,
+        runtime=10,
     script:
         "../scripts/match_scenes.py"
 
@@ -26,12 +44,12 @@ checkpoint match_scenes:
 rule radar:
     input:
         insitu=f"{RESULTS}/deployments/{{deployment}}/status/insitu.json",
+        matches=f"{RESULTS}/deployments/{{deployment}}/matches.csv",
         scenes=get_matched_scenes,
     output:
         status=f"{RESULTS}/deployments/{{deployment}}/status/radar.json",
     params:
         archive=ARCHIVE,
-        matched=get_matched_scene_rows,
         radii_m=config["radar"]["radii_m"],
         coverage_threshold=config["radar"]["coverage_threshold"],
         mask_codes=config["radar"]["mask_codes"],

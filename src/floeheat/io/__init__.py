@@ -10,28 +10,21 @@ Modules: :mod:`~floeheat.io.cf` (CF building blocks), :mod:`~floeheat.io.archive
 bathymetry) and :mod:`~floeheat.io.scenes`.
 """
 
-from floeheat.io.archive import read_deployments, read_scene_table
-from floeheat.io.cf import open_netcdf
-from floeheat.io.gridded import (
-    open_bathymetry,
-    open_concentration,
-    open_shortwave,
-    read_shortwave_csv,
-)
-from floeheat.io.icemass import read_icemass
-from floeheat.io.profiles import read_profiles
-from floeheat.io.scenes import Scene, open_scene
+import importlib
 
-__all__ = [
-    "read_deployments",
-    "read_scene_table",
-    "open_netcdf",
-    "read_profiles",
-    "read_icemass",
-    "open_shortwave",
-    "read_shortwave_csv",
-    "open_concentration",
-    "open_bathymetry",
-    "Scene",
-    "open_scene",
-]
+# Readers load on first use, so that a job needing one reader does not pay for the
+# imports of all of them (dask, rasterio, ...).
+_WHERE = {
+    "read_deployments": "archive", "read_scene_table": "archive", "open_netcdf": "cf",
+    "read_profiles": "profiles", "read_icemass": "icemass", "open_shortwave": "gridded",
+    "read_shortwave_csv": "gridded", "open_concentration": "gridded",
+    "open_bathymetry": "gridded", "Scene": "scenes", "open_scene": "scenes",
+}
+
+__all__ = list(_WHERE)
+
+
+def __getattr__(name):
+    if name in _WHERE:
+        return getattr(importlib.import_module(f"floeheat.io.{_WHERE[name]}"), name)
+    raise AttributeError(f"module 'floeheat.io' has no attribute {name!r}")

@@ -8,50 +8,21 @@ give the same manifest.
 
 from __future__ import annotations
 
-import hashlib
 import json
 from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
 
 from floeheat import ARCHIVE_FORMAT_VERSION, OUTPUT_FORMAT_VERSION, __version__
+from floeheat.checksums import sha256_file, sha256_tree
 from floeheat.steps.status import write_json_atomic
 
-__all__ = ["NUMERIC_PACKAGES", "sha256_file", "sha256_tree", "software_versions",
+__all__ = ["NUMERIC_PACKAGES", "software_versions",
            "archive_files", "run_manifest"]
 
 #: Dependencies whose versions can change numbers in the outputs.
 NUMERIC_PACKAGES = ("numpy", "scipy", "pandas", "xarray", "dask", "zarr", "numcodecs",
                     "netCDF4", "rasterio", "pyproj", "gsw", "scikit-image", "pint",
                     "cf-xarray", "shapely", "matplotlib", "pyarrow", "snakemake")
-
-
-def sha256_file(path: Path) -> str:
-    """sha256 of a file's bytes, hex."""
-    h = hashlib.sha256()
-    with open(path, "rb") as f:
-        for block in iter(lambda: f.read(1 << 20), b""):
-            h.update(block)
-    return h.hexdigest()
-
-
-def sha256_tree(path: Path) -> str:
-    """sha256 of a directory (a Zarr store): its files' relative paths and bytes, sorted.
-
-    Examples
-    --------
-    >>> import tempfile
-    >>> d = Path(tempfile.mkdtemp()); _ = (d / "a").write_text("x")
-    >>> sha256_tree(d) == sha256_tree(d)
-    True
-    """
-    path = Path(path)
-    if path.is_file():
-        return sha256_file(path)
-    h = hashlib.sha256()
-    for f in sorted(p for p in path.rglob("*") if p.is_file()):
-        h.update(f.relative_to(path).as_posix().encode() + b"\0")
-        h.update(sha256_file(f).encode())
-    return h.hexdigest()
 
 
 def software_versions() -> dict[str, str]:

@@ -1,10 +1,11 @@
-"""Stages ``match_scenes`` (checkpoint) and ``radar``: scenes to buoys, then fractions.
+"""Stages ``scene_footprints``, ``match_scenes`` (checkpoint) and ``radar``.
 
-Matching opens each scene's header once (CRS, transform, shape: no pixels) and keeps,
-for every deployment whose track spans the scene time, the radii whose circle the
-scene's footprint covers at least to the threshold (science.md: the same rule decides
-matching and counting). The radar stage then reads, per matched scene, only the window
-of pixels the deployment's largest circle needs, and computes f_ow and the exact valid
+Each scene's header is opened once per run (CRS, transform, shape: no pixels) into a
+footprint table. Per deployment, the checkpoint keeps the scenes whose time lies within
+the track and the radii whose circle the scene's footprint covers at least to the
+threshold (science.md: the same rule decides matching and counting). The radar stage
+then reads, per matched scene, only the window of pixels the deployment's largest
+circle needs, and computes f_ow and the exact valid
 coverage for every radius from that one read.
 """
 
@@ -22,8 +23,8 @@ from floeheat.errors import ArchiveError
 from floeheat.io.scenes import open_scene
 from floeheat.steps.status import StageFailed, atomic_path, read_status, run_stage
 
-__all__ = ["MATCH_COLUMNS", "FRACTION_COLUMNS", "run_match_scenes", "run_radar",
-           "position_at", "read_track"]
+__all__ = ["MATCH_COLUMNS", "FRACTION_COLUMNS", "FOOTPRINT_COLUMNS", "run_scene_footprints",
+           "match_track", "run_match_scenes", "run_radar", "position_at", "read_track"]
 
 log = logging.getLogger(__name__)
 
@@ -59,54 +60,79 @@ def position_at(track: pd.DataFrame, times, crs) -> tuple[np.ndarray, np.ndarray
     return lat, lon, x, y
 
 
-def _tracks(insitu_status: list[str]) -> dict[str, pd.DataFrame]:
-    out = {}
-    for path in insitu_status:
-        record = read_status(path)
-        if record.get("ok"):
-            out[record["deployment_id"]] = read_track(record["track"])
-    return out
+#: Columns of footprints.csv: each scene's grid, read once from its header.
+FOOTPRINT_COLUMNS = ("scene_id", "path", "time", "content", "band", "crs_wkt", "a", "b",
+                     "c", "d", "e", "f", "rows", "cols")
 
 
-def run_match_scenes(archive: str, scenes_csv: str, insitu_status: list[str],
-                     matches_csv: str, *, radii_m: list[float],
-                     coverage_threshold: float) -> pd.DataFrame:
-    """Match every scene to the deployments it serves; write matches.csv."""
+def run_scene_footprints(archive: str, scenes_csv: str, footprints_csv: str) -> pd.DataFrame:
+    """Read every scene's header once (CRS, transform, shape; no pixels)."""
     scenes = pd.read_csv(scenes_csv, dtype=str, keep_default_na=False)
-    tracks = _tracks(sorted(insitu_status))
-    radii = np.asarray(sorted(radii_m), dtype=float)
     rows = []
     for scene in scenes.itertuples(index=False):
-        t = np.datetime64(pd.Timestamp(scene.time).tz_localize(None), "ns")
-        spans = {d: tr for d, tr in tracks.items()
-                 if tr["time"].iloc[0] <= t <= tr["time"].iloc[-1]}
-        if not spans:
-            continue
         try:
             with open_scene(Path(archive) / scene.path, scene.content,
                             bands=scene.band or None) as sc:
-                crs, transform, shape = sc.crs, sc.transform, sc.shape
+                t = sc.transform
+                rows.append((scene.scene_id, scene.path, scene.time, scene.content,
+                             scene.band, sc.crs.to_wkt(), t.a, t.b, t.c, t.d, t.e, t.f,
+                             sc.shape[0], sc.shape[1]))
         except ArchiveError as exc:
             # A broken scene is left out (and logged); it must not stop the run.
             log.error("scene %s left out: %s", scene.scene_id, exc)
+    table = pd.DataFrame(rows, columns=list(FOOTPRINT_COLUMNS))
+    with atomic_path(Path(footprints_csv)) as tmp:
+        table.to_csv(tmp, index=False, float_format="%.17g", lineterminator="\n")
+    log.info("footprints of %d of %d scenes", len(table), len(scenes))
+    return table
+
+
+def match_track(footprints: pd.DataFrame, track: pd.DataFrame, deployment_id: str, *,
+                radii_m: list[float], coverage_threshold: float) -> pd.DataFrame:
+    """Scenes (and radii) that serve one track: the scene time lies within the track and
+    the scene footprint covers at least ``coverage_threshold`` of the circle."""
+    from affine import Affine
+    from pyproj import CRS
+
+    radii = np.asarray(sorted(radii_m), dtype=float)
+    t0, t1 = track["time"].iloc[0], track["time"].iloc[-1]
+    times = pd.to_datetime(footprints["time"], utc=True).dt.tz_localize(None)
+    inside = footprints[(times >= t0) & (times <= t1)]
+    rows = []
+    crs_cache: dict[str, CRS] = {}
+    for fp in inside.itertuples(index=False):
+        crs = crs_cache.setdefault(fp.crs_wkt, CRS.from_wkt(fp.crs_wkt))
+        t = np.datetime64(pd.Timestamp(fp.time).tz_localize(None), "ns")
+        lat, lon, x, y = position_at(track, [t], crs)
+        if not np.isfinite(x[0]):
             continue
-        for dep, tr in sorted(spans.items()):
-            lat, lon, x, y = position_at(tr, [t], crs)
-            if not np.isfinite(x[0]):
-                continue
-            radii_proj = openwater.projected_radius(radii, crs, lon[0], lat[0])
-            cover = openwater.scene_coverage(transform, shape, x[0], y[0], radii_proj)
-            for r, c in zip(radii, np.atleast_1d(cover)):
-                if c >= coverage_threshold:
-                    rows.append((dep, scene.scene_id, scene.path, scene.time, scene.content,
-                                 scene.band, float(r), float(c)))
+        radii_proj = openwater.projected_radius(radii, crs, lon[0], lat[0])
+        transform = Affine(fp.a, fp.b, fp.c, fp.d, fp.e, fp.f)
+        cover = openwater.scene_coverage(transform, (int(fp.rows), int(fp.cols)), x[0], y[0],
+                                         radii_proj)
+        for r, c in zip(radii, np.atleast_1d(cover)):
+            if c >= coverage_threshold:
+                rows.append((deployment_id, fp.scene_id, fp.path, fp.time, fp.content,
+                             fp.band, float(r), float(c)))
     matches = pd.DataFrame(rows, columns=list(MATCH_COLUMNS))
-    matches = matches.sort_values(["deployment_id", "time", "scene_id", "radius_m"],
-                                  kind="stable")
+    return matches.sort_values(["time", "scene_id", "radius_m"], kind="stable")
+
+
+def run_match_scenes(footprints_csv: str, insitu_status: str, matches_csv: str, *,
+                     radii_m: list[float], coverage_threshold: float) -> pd.DataFrame:
+    """Checkpoint of one deployment: write its matches.csv (empty when its track failed)."""
+    footprints = pd.read_csv(footprints_csv, dtype={"band": str, "scene_id": str},
+                             keep_default_na=False)
+    record = read_status(insitu_status)
+    if record.get("ok"):
+        matches = match_track(footprints, read_track(record["track"]),
+                              record["deployment_id"], radii_m=radii_m,
+                              coverage_threshold=coverage_threshold)
+    else:
+        matches = pd.DataFrame(columns=list(MATCH_COLUMNS))
     with atomic_path(Path(matches_csv)) as tmp:
         matches.to_csv(tmp, index=False, float_format="%.10g", lineterminator="\n")
-    log.info("matched %d (deployment, scene, radius) triples over %d scenes",
-             len(matches), len(scenes))
+    log.info("matched %d (scene, radius) pairs", len(matches))
     return matches
 
 
@@ -143,9 +169,11 @@ def _fractions(archive: Path, track: pd.DataFrame, matched: list[dict], radii_m:
     return pd.DataFrame(rows, columns=list(FRACTION_COLUMNS))
 
 
-def run_radar(archive: str, insitu_status: str, matched: list[dict], status_path: str, *,
+def run_radar(archive: str, insitu_status: str, matches_csv: str, status_path: str, *,
               radii_m: list[float], coverage_threshold: float, mask_codes: dict) -> dict:
     """Open-water fractions of one deployment from its matched scenes."""
+    matched = pd.read_csv(matches_csv, dtype={"band": str, "scene_id": str},
+                          keep_default_na=False).to_dict(orient="records")
     status = Path(status_path)
     work_dir = status.parent.parent / "work"
     dep = status.parent.parent.name

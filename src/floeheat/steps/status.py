@@ -18,6 +18,7 @@ from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
 
+from floeheat.checksums import sha256_tree
 from floeheat.errors import ArchiveError
 
 __all__ = ["atomic_path", "write_json_atomic", "read_status", "run_stage", "StageFailed",
@@ -132,5 +133,9 @@ def run_stage(stage: str, deployment_id: str, status_path: Path,
         log.error("%s failed for %s:\n%s", stage, deployment_id, traceback.format_exc())
     else:
         record.update(ok=True, **products)
+        # The products' checksums make the record change exactly when a product does,
+        # so downstream jobs rerun when (and only when) their real inputs changed.
+        record["checksums"] = {key: sha256_tree(value) for key, value in products.items()
+                               if isinstance(value, str) and value and Path(value).exists()}
     write_json_atomic(status_path, record)
     return record

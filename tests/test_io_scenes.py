@@ -107,3 +107,39 @@ def test_netcdf_scene_without_crs(tmp_path):
     path = vf.scene_netcdf_mask(tmp_path / "m.nc", with_crs=False)
     with pytest.raises(ArchiveError, match=r"m\.nc: the scene has no CRS"):
         open_scene(path, "mask")
+
+
+def test_netcdf_backscatter_noise_floor_is_not_taken_for_its_polarisation(tmp_path):
+    # A noise-floor variable names the polarisation it belongs to; its role says it is
+    # a noise floor (archive-format.md, "noise_equivalent_sigma0"), so it must not
+    # replace the sigma0 band of that polarisation.
+    import netCDF4
+
+    path = tmp_path / "bs.nc"
+    with netCDF4.Dataset(path, "w") as ds:
+        ds.time_coverage_start = "2020-06-02T00:00:00Z"
+        ds.createDimension("row", 4)
+        ds.createDimension("col", 3)
+        ds.createVariable("row", "f8", ("row",))[:] = 1000.0 - 100.0 * np.arange(4)
+        ds["row"].setncatts({"standard_name": "projection_y_coordinate", "units": "m"})
+        ds.createVariable("col", "f8", ("col",))[:] = 100.0 * np.arange(3)
+        ds["col"].setncatts({"standard_name": "projection_x_coordinate", "units": "m"})
+        gm = ds.createVariable("proj", "i4")
+        gm.setncatts({"grid_mapping_name": "polar_stereographic",
+                      "straight_vertical_longitude_from_pole": -45.0,
+                      "latitude_of_projection_origin": 90.0, "standard_parallel": 70.0,
+                      "false_easting": 0.0, "false_northing": 0.0,
+                      "semi_major_axis": 6378137.0, "inverse_flattening": 298.257223563})
+        hh = ds.createVariable("sigma_hh", "f4", ("row", "col"))
+        hh[:] = np.full((4, 3), -12.0)
+        hh.setncatts({"units": "dB", "polarisation": "HH", "grid_mapping": "proj"})
+        nesz = ds.createVariable("floor_hh", "f4", ("row", "col"))
+        nesz[:] = np.full((4, 3), -24.0)
+        nesz.setncatts({"units": "dB", "polarisation": "HH", "grid_mapping": "proj",
+                        "role": "noise_equivalent_sigma0"})
+    with open_scene(path, "backscatter") as sc:
+        assert sc.polarisations == ("HH",)
+        assert sc.noise == {"HH": "noise_equivalent_sigma0_HH"}
+        np.testing.assert_allclose(sc.read_window(slice(0, 2), slice(0, 2), band="HH"), -12.0)
+        np.testing.assert_allclose(
+            sc.read_window(slice(0, 2), slice(0, 2), band="noise_equivalent_sigma0_HH"), -24.0)

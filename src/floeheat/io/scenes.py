@@ -171,9 +171,16 @@ class Scene:
         else:
             self._vars = {}
             for name, var in grids.items():
-                label = str(var.attrs.get("polarisation", var.attrs.get("polarization", name)))
-                if var.attrs.get("standard_name") == "angle_of_incidence":
+                pol = str(var.attrs.get("polarisation", var.attrs.get("polarization", name)))
+                role = str(var.attrs.get("role", ""))
+                # the role says what a band is; a noise floor names its polarisation too
+                if role == "noise_equivalent_sigma0" or name.startswith(NOISE_PREFIX):
+                    label = name if name.startswith(NOISE_PREFIX) else f"{NOISE_PREFIX}_{pol}"
+                elif (var.attrs.get("standard_name") == "angle_of_incidence"
+                      or role == INCIDENCE_ANGLE):
                     label = INCIDENCE_ANGLE
+                else:
+                    label = pol
                 self._vars[label] = name
         units = {label: str(ds[name].attrs.get("units", "")) for label, name in
                  self._vars.items()}

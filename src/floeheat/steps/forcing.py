@@ -34,6 +34,7 @@ def point_series_chunks(ds: xr.Dataset) -> dict[str, int]:
 
     Examples
     --------
+    >>> import numpy as np
     >>> ds = xr.Dataset({"a": (("time", "y", "x"), np.zeros((100, 40, 3)))})
     >>> point_series_chunks(ds)
     {'time': 100, 'y': 16, 'x': 3}

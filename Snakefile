@@ -2,7 +2,12 @@
 # Archive (format version 1) -> per-deployment budgets -> basin-wide tables.
 # Run from the repository root with the project's .venv active:
 #   snakemake --profile profiles/default [--config archive=PATH results=PATH]
+import os
+import sys
+
 from snakemake.utils import min_version, validate
+
+from floeheat.reproduce import PinMismatch, check_pin
 
 min_version("9.0")
 
@@ -11,6 +16,15 @@ configfile: "config/config.yaml"
 
 
 validate(config, "workflow/schemas/config.schema.yaml", set_default=True)
+
+# A pinned run (--configfile config/runs/NAME.yaml) refuses to start when its archive,
+# settings or software differ from the pin, unless --config pin_override=true.
+LOCK = os.path.relpath(os.path.join(workflow.basedir, "requirements.lock"))
+if workflow.is_main_process:
+    try:
+        check_pin(config, LOCK)
+    except PinMismatch as refusal:
+        sys.exit(f"floeheat: {refusal}")
 
 
 include: "workflow/rules/common.smk"

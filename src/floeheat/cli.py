@@ -39,6 +39,40 @@ def _cmd_check(args: argparse.Namespace) -> int:
     return 1 if report.blocking else 0
 
 
+#: Where `pin` finds the schema and the lock file by default (the repository root).
+_SCHEMA = "workflow/schemas/config.schema.yaml"
+_LOCK = "requirements.lock"
+
+
+def _cmd_pin(args: argparse.Namespace) -> int:
+    from floeheat.reproduce import PinError, make_pin, write_pin
+
+    try:
+        pin = make_pin(args.archive, args.config, args.name, args.schema, args.lock)
+        path = write_pin(pin, args.out)
+    except PinError as exc:
+        print(f"floeheat pin: {exc}", file=sys.stderr)
+        return 2
+    block = pin["pin"]
+    print(f"pinned run '{args.name}' written to {path}: {len(block['archive_files'])} "
+          f"archive files, floeheat {block['floeheat_version']}, lock "
+          f"{(block['requirements_lock_sha256'] or 'absent')[:12]}")
+    print(f"run it with: snakemake --profile profiles/default --configfile {path}")
+    return 0
+
+
+def _cmd_verify(args: argparse.Namespace) -> int:
+    from floeheat.reproduce import PinError, format_verify, verify
+
+    try:
+        report = verify(args.results, args.against)
+    except PinError as exc:
+        print(f"floeheat verify: {exc}", file=sys.stderr)
+        return 2
+    print(format_verify(report, all_lines=args.all))
+    return 0 if report.ok else 1
+
+
 def build_parser() -> argparse.ArgumentParser:
     """Build the argument parser with every sub-command and its help."""
     parser = argparse.ArgumentParser(
@@ -74,6 +108,43 @@ def build_parser() -> argparse.ArgumentParser:
     )
     p.add_argument("archive", help="archive root folder (holds deployments.csv)")
     p.set_defaults(func=_cmd_check)
+
+    p = sub.add_parser(
+        "pin",
+        help="pin a run: every setting, the software and the archive's checksums",
+        description="Write config/runs/NAME.yaml: the full resolved config of CONFIG run on "
+        "ARCHIVE (every default filled in from the schema), the floeheat version, the "
+        "sha256 of requirements.lock and of every archive file. Run the workflow with "
+        "--configfile on it; the run refuses to start when any of these differ, unless "
+        "given --config pin_override=true. Run from the repository root.",
+    )
+    p.add_argument("archive", help="archive root folder (holds deployments.csv), as the "
+                   "workflow will be given it (relative to the repository root or absolute)")
+    p.add_argument("--config", default="config/config.yaml",
+                   help="settings to pin (default config/config.yaml); missing keys take "
+                   "the schema's defaults")
+    p.add_argument("--name", required=True, help="name of the pinned run (the file NAME.yaml)")
+    p.add_argument("--out", default="config/runs",
+                   help="folder to write NAME.yaml into (default config/runs)")
+    p.add_argument("--schema", default=_SCHEMA, help=f"config schema (default {_SCHEMA})")
+    p.add_argument("--lock", default=_LOCK, help=f"lock file (default {_LOCK})")
+    p.set_defaults(func=_cmd_pin)
+
+    p = sub.add_parser(
+        "verify",
+        help="compare a run's outputs with a manifest",
+        description="Recompute the checksums of every output in RESULTS and compare them "
+        "with MANIFEST: each output is identical, different, missing or new. For a CSV "
+        "table that differs, the first differing row (line number and key columns) and "
+        "column are shown with both values, when the reference table lies beside the "
+        "manifest (MANIFEST's folder + the table's relative path). Exits 0 when all are "
+        "identical, 1 on any difference, 2 when an input cannot be read.",
+    )
+    p.add_argument("results", help="results folder of the run to check")
+    p.add_argument("--against", required=True, metavar="MANIFEST",
+                   help="manifest.json of the reference run")
+    p.add_argument("--all", action="store_true", help="list identical outputs too")
+    p.set_defaults(func=_cmd_verify)
     return parser
 
 

@@ -346,8 +346,13 @@ def find_ice_bottom(
         # (linear between cycles up to HEATED_MAX_GAP). Where the temperature pick
         # strays farther than one sensor spacing from it (water barely above freezing
         # hides the interface from temperature alone), the heating pick wins.
-        zh_all = _bridge(temperature, zh, HEATED_MAX_GAP)
         spacing = float(np.median(np.diff(z))) if z.size > 1 else 0.0
+        # a heating pick far from its neighbouring cycles' median is a bad cycle
+        ok = np.flatnonzero(np.isfinite(zh))
+        if ok.size >= 3:
+            near = pd.Series(zh[ok]).rolling(5, center=True, min_periods=1).median().values
+            zh[ok[np.abs(zh[ok] - near) > 2.0 * spacing]] = np.nan
+        zh_all = _bridge(temperature, zh, HEATED_MAX_GAP)
         stray = (src == 1) & np.isfinite(zh_all) & (np.abs(zb - zh_all) > spacing)
         use = ((src == 0) & np.isfinite(zh_all)) | stray
         zb[use] = zh_all[use]

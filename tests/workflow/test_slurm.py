@@ -93,22 +93,38 @@ def _env() -> dict[str, str]:
     return env
 
 
-def _snakemake(args: list[str], limit: int) -> tuple[subprocess.CompletedProcess, float]:
-    """Run snakemake from the repository root under `timeout -k` (SIGTERM first, so
-    that snakemake cancels its Slurm jobs); returns the process and its duration."""
-    cmd = [sys.executable, "-m", "snakemake", *args]
-    if shutil.which("timeout"):
-        cmd = ["timeout", "-k", "30", str(limit), *cmd]
-    start = time.monotonic()
-    proc = subprocess.run(cmd, cwd=REPO, env=_env(), capture_output=True, text=True,
-                          timeout=limit + 60)
-    return proc, time.monotonic() - start
+class _Run:
+    """snakemake started from the repository root under `timeout -k` (SIGTERM first, so
+    that snakemake cancels its Slurm jobs), output to files (no pipe to fill up)."""
+
+    def __init__(self, args: list[str], limit: int, logdir: Path, name: str):
+        cmd = [sys.executable, "-m", "snakemake", *args]
+        if shutil.which("timeout"):
+            cmd = ["timeout", "-k", "30", str(limit), *cmd]
+        logdir.mkdir(parents=True, exist_ok=True)
+        self.out, self.err = logdir / f"{name}.stdout", logdir / f"{name}.stderr"
+        self.limit = limit
+        self.start = time.monotonic()
+        with open(self.out, "w") as out, open(self.err, "w") as err:
+            self.proc = subprocess.Popen(cmd, cwd=REPO, env=_env(), stdout=out, stderr=err)
+
+    def wait(self) -> tuple[subprocess.CompletedProcess, float]:
+        """The finished process (exit code, stdout, stderr) and its duration [s]."""
+        try:
+            code = self.proc.wait(timeout=self.limit + 60)
+        except subprocess.TimeoutExpired:
+            self.proc.kill()
+            code = self.proc.wait()
+        seconds = time.monotonic() - self.start
+        return subprocess.CompletedProcess(self.proc.args, code, self.out.read_text(),
+                                           self.err.read_text()), seconds
 
 
 def _slurm_args(cluster, tmp: Path) -> list[str]:
     return ["--profile", "profiles/slurm",
-            # CI: first status query 3 s after a submission (the tiny jobs take ~20 s)
-            "--slurm-init-seconds-before-status-checks", "3",
+            # the Slurm profile alone, without the implicit workflow profile
+            # profiles/default (whose keys would override the Slurm profile's)
+            "--workflow-profile", "none",
             "--slurm-logdir", str(tmp / "slurm-logs"),
             "--slurm-jobname-prefix", PREFIX,
             "--max-threads", str(cluster["cpus"])]
@@ -131,12 +147,14 @@ def runs(slurm_cluster, archive, tmp_path_factory) -> dict[str, Path]:
     """The tiny archive run locally (profiles/default) and through Slurm."""
     tmp = tmp_path_factory.mktemp("slurm-runs")
     out = {"local": tmp / "local", "slurm": tmp / "slurm"}
-    proc, _ = _snakemake(["--profile", "profiles/default", "--config", f"archive={archive}",
-                          f"results={out['local']}"], RUN_TIMEOUT)
+    # side by side: the local run fills the gaps while Slurm jobs start and are polled
+    slurm = _Run([*_slurm_args(slurm_cluster, tmp), "--config", f"archive={archive}",
+                  f"results={out['slurm']}"], RUN_TIMEOUT, tmp, "slurm")
+    local = _Run(["--profile", "profiles/default", "--config", f"archive={archive}",
+                  f"results={out['local']}"], RUN_TIMEOUT, tmp, "local")
+    proc, seconds = local.wait()
     assert proc.returncode == 0, "local run failed: " + _tail(proc)
-    proc, seconds = _snakemake([*_slurm_args(slurm_cluster, tmp), "--config",
-                                f"archive={archive}", f"results={out['slurm']}"],
-                               RUN_TIMEOUT)
+    proc, seconds = slurm.wait()
     assert proc.returncode == 0, f"Slurm run failed after {seconds:.0f} s: " + _tail(proc)
     # every job went through sbatch (none ran on the submit host but the target rule)
     assert "has been submitted with SLURM jobid" in proc.stderr + proc.stdout
@@ -167,8 +185,9 @@ def test_a_failing_job_fails_the_slurm_run_and_names_its_log(slurm_cluster, arch
     sheet = pd.read_csv(archive / "deployments.csv", dtype=str)
     sheet.drop(columns=["deployment_id"]).to_csv(broken / "deployments.csv", index=False)
     results = tmp_path / "results"
-    proc, seconds = _snakemake([*_slurm_args(slurm_cluster, tmp_path), "--config",
-                                f"archive={broken}", f"results={results}"], FAIL_TIMEOUT)
+    proc, seconds = _Run([*_slurm_args(slurm_cluster, tmp_path), "--config",
+                          f"archive={broken}", f"results={results}"], FAIL_TIMEOUT,
+                         tmp_path, "slurm").wait()
     text = proc.stdout + proc.stderr
     assert proc.returncode not in (0, 124, 137), _tail(proc)  # failed, not timed out
     assert seconds < FAIL_TIMEOUT, _tail(proc)

@@ -29,6 +29,8 @@ rule manifest:
         failures=f"{RESULTS}/tables/failures.csv",
         figures=f"{RESULTS}/figures",
         budgets=all_stage_status("budget"),
+        # Recorded by checksum: a new lock reruns the manifest.
+        lock=[LOCK] if os.path.exists(LOCK) else [],
     output:
         manifest=f"{RESULTS}/manifest.json",
     params:

@@ -76,9 +76,12 @@ def radar_fraction_series(fractions_csv: str, target_time, radii_m, max_gap_days
 
 
 def microwave_fraction_series(store: xr.Dataset, track: pd.DataFrame, start, end,
-                              target_time, settings: dict) -> xr.DataArray | None:
-    """Microwave f_ow(time, radius) at ``target_time`` (daily values linear between
-    their interval midpoints)."""
+                              target_time, settings: dict, max_gap_days: float
+                              ) -> xr.DataArray | None:
+    """Microwave f_ow(time, radius) at ``target_time``: daily values stand at their
+    interval midpoints, linear between them (science.md); days missing at the buoy are
+    bridged up to ``max_gap_days`` (the radar rule's gap, so both sources are held to
+    the same standard)."""
     bnds = store["time_bnds"].values
     keep = (bnds[:, 1] > np.datetime64(start) - _DAY) & (bnds[:, 0] < np.datetime64(end) + _DAY)
     if not keep.any():
@@ -92,7 +95,7 @@ def microwave_fraction_series(store: xr.Dataset, track: pd.DataFrame, start, end
     sub = sub.isel(time=np.flatnonzero(ok))
     daily = fraction_at_buoys(sub, lat[ok], lon[ok], radii_m=sorted(settings["radii_m"]),
                               method=settings["method"])
-    return interpolate_daily(daily, target_time)
+    return interpolate_daily(daily, target_time, max_gap=pd.Timedelta(days=max_gap_days))
 
 
 def _combine(series: dict[str, xr.DataArray], target_time) -> xr.DataArray:
@@ -178,7 +181,8 @@ def _work(row: dict, insitu: dict, radar: dict | None, shortwave_store: str,
             series["radar"] = f
     conc = _open_store(concentration_store)
     if conc is not None:
-        f = microwave_fraction_series(conc, track, start, end, target, microwave)
+        f = microwave_fraction_series(conc, track, start, end, target, microwave,
+                                      radar_max_gap_days)
         if f is not None:
             series["microwave"] = f
     f_ow = _combine(series, target) if series else None

@@ -1,9 +1,12 @@
 """Stage ``manifest``: the run record (outputs.md "Run record").
 
-The manifest holds the resolved config, software versions, the archive format version,
-the sha256 of every archive file the run read and of every output of the contract. It
-holds no wall-clock times or host names, so two runs of the same inputs and settings
-give the same manifest.
+The manifest holds the resolved config, software versions, the sha256 of
+requirements.lock, the archive format version, the sha256 of every archive file the run
+read and of every output of the contract, the deployments that failed (from
+failures.csv) and, for a pinned run, the pin's name and whether (and how) it was
+overridden. It holds no wall-clock times or host names and its keys are sorted, so two
+runs of the same inputs and settings give the same manifest (``floeheat verify``
+compares outputs against it).
 """
 
 from __future__ import annotations
@@ -16,8 +19,8 @@ from floeheat import ARCHIVE_FORMAT_VERSION, OUTPUT_FORMAT_VERSION, __version__
 from floeheat.checksums import sha256_file, sha256_tree
 from floeheat.steps.status import write_json_atomic
 
-__all__ = ["NUMERIC_PACKAGES", "software_versions",
-           "archive_files", "run_manifest"]
+__all__ = ["NUMERIC_PACKAGES", "software_versions", "archive_files", "output_checksums",
+           "failed_deployments", "pin_record", "LOCK_FILE", "run_manifest"]
 
 #: Dependencies whose versions can change numbers in the outputs.
 NUMERIC_PACKAGES = ("numpy", "scipy", "pandas", "xarray", "dask", "zarr", "numcodecs",
@@ -42,19 +45,62 @@ def archive_files(archive: Path) -> list[Path]:
     return sorted(p for p in archive.rglob("*") if p.is_file() and not p.name.startswith("."))
 
 
-def run_manifest(archive: str, results: str, config: dict, manifest_path: str) -> dict:
-    """Write manifest.json for a finished run."""
-    archive_p, results_p = Path(archive), Path(results)
-    inputs = {p.relative_to(archive_p).as_posix(): sha256_file(p)
-              for p in archive_files(archive_p)}
+def output_checksums(results) -> dict[str, str]:
+    """sha256 of every output of the contract in a results folder, by relative path:
+    the three tables, each budget.zarr store (as a tree) and every figure."""
+    results_p = Path(results)
     outputs: dict[str, str] = {}
     for rel in ("tables/seasonal.csv", "tables/climatology.csv", "tables/failures.csv"):
-        outputs[rel] = sha256_file(results_p / rel)
+        if (results_p / rel).is_file():
+            outputs[rel] = sha256_file(results_p / rel)
     for store in sorted((results_p / "deployments").glob("*/budget.zarr")):
         outputs[store.relative_to(results_p).as_posix()] = sha256_tree(store)
     figures = results_p / "figures"
-    for f in sorted(p for p in figures.rglob("*") if p.is_file()):
+    for f in sorted(p for p in figures.rglob("*") if p.is_file() and not p.name.startswith(".")):
         outputs[f.relative_to(results_p).as_posix()] = sha256_file(f)
+    return dict(sorted(outputs.items()))
+
+
+def failed_deployments(failures_csv) -> list[dict[str, str]]:
+    """The deployments of failures.csv with the stage each failed at, sorted."""
+    import csv
+
+    with open(failures_csv, newline="") as f:
+        rows = [{"deployment_id": r["deployment_id"], "stage": r["stage"]}
+                for r in csv.DictReader(f)]
+    return sorted(rows, key=lambda r: (r["deployment_id"], r["stage"]))
+
+
+def pin_record(config: dict, lock: str | None) -> dict | None:
+    """The pin of a pinned run (name, override flag, what was overridden); None when the
+    run is not pinned."""
+    from floeheat.reproduce import PIN_KEY, override_requested, pin_differences
+
+    pin = config.get(PIN_KEY)
+    if not pin:
+        return None
+    override = override_requested(config)
+    return {"name": pin.get("name"), "override": override,
+            "overridden": [str(d) for d in pin_differences(config, lock)] if override else []}
+
+
+#: The lock file, relative to the folder the workflow runs from (the repository root).
+LOCK_FILE = "requirements.lock"
+
+
+def run_manifest(archive: str, results: str, config: dict, manifest_path: str,
+                 lock: str | None = LOCK_FILE) -> dict:
+    """Write manifest.json for a finished run.
+
+    ``lock`` is the path of requirements.lock (its sha256 is recorded; a missing file
+    records null).
+    """
+    from floeheat.reproduce import lock_checksum
+
+    archive_p, results_p = Path(archive), Path(results)
+    inputs = {p.relative_to(archive_p).as_posix(): sha256_file(p)
+              for p in archive_files(archive_p)}
+    failures = results_p / "tables" / "failures.csv"
     record = {
         "floeheat_version": __version__,
         "archive_format_version": ARCHIVE_FORMAT_VERSION,
@@ -64,9 +110,11 @@ def run_manifest(archive: str, results: str, config: dict, manifest_path: str) -
         "config": json.loads(json.dumps({k: v for k, v in config.items() if k != "results"},
                                         default=str)),
         "software": software_versions(),
+        "requirements_lock_sha256": lock_checksum(lock),
+        "pin": pin_record(config, lock),
+        "failed_deployments": failed_deployments(failures) if failures.is_file() else [],
         "inputs": inputs,
-        "outputs": outputs,
+        "outputs": output_checksums(results_p),
     }
     write_json_atomic(Path(manifest_path), record)
     return record
-

@@ -109,7 +109,7 @@ MAX_DRIFT_SPEED_M_S = 1.5
 SEASON_NORTH = ((5, 1), (10, 1))
 SEASON_SOUTH = ((11, 1), (4, 1))
 
-#: Working CRS by hemisphere: NSIDC polar stereographic north / Antarctic polar stereographic.
+#: Working CRS by hemisphere: polar stereographic north (true scale 70 N) / south (71 S).
 CRS_WORKING_NORTH = "EPSG:3413"
 CRS_WORKING_SOUTH = "EPSG:3976"
 #: Equal-area climatology grids (EASE-Grid 2.0 north/south) and their cell size.

@@ -238,7 +238,10 @@ def pin_differences(config: dict, lock_path=None) -> list[Difference]:
     diffs: list[Difference] = []
     archive = Path(str(config["archive"]))
     pinned = pin.get("archive_files") or {}
-    now = archive_checksums(archive) if archive.is_dir() else {}
+    if not archive.is_dir():
+        diffs.append(Difference("missing", str(archive), f"the whole archive folder, "
+                                                         f"{len(pinned)} pinned files"))
+    now = archive_checksums(archive) if archive.is_dir() else dict(pinned)
     for rel in sorted(set(pinned) | set(now)):
         if rel not in now:
             diffs.append(Difference("missing", rel, "pinned, not in the archive"))

@@ -44,9 +44,9 @@ def _cluster_problem() -> str | None:
             return f"{tool} not found: no Slurm client here (start a cluster: .ci/slurm-up)"
     try:
         proc = subprocess.run(["sinfo", "--noheader", "--responding", "-o", "%T"],
-                              capture_output=True, text=True, timeout=30)
+                              capture_output=True, text=True, timeout=20)
     except subprocess.TimeoutExpired:
-        return "sinfo did not answer within 30 s: slurmctld is not reachable"
+        return "sinfo did not answer within 20 s: slurmctld is not reachable"
     if proc.returncode != 0:
         return f"sinfo failed: {proc.stderr.strip() or proc.stdout.strip()}"
     states = {s.strip().rstrip("*~#$@").lower() for s in proc.stdout.split()}

@@ -40,5 +40,8 @@ rule manifest:
     log:
         f"{RESULTS}/logs/manifest.log",
     threads: 1
+    resources:
+        mem_mb=500,
+        runtime=10,
     script:
         "../scripts/manifest.py"

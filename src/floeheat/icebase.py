@@ -224,6 +224,75 @@ def _bridge(temperature: xr.DataArray, values: np.ndarray, max_gap) -> np.ndarra
     return out
 
 
+def _two_layer_cost(z: np.ndarray, t: np.ndarray, target: float, grid: np.ndarray) -> np.ndarray:
+    """Sum of squared residuals of the two-layer model for each candidate interface depth.
+
+    Sensors (``z``, ``t``) at or above a candidate zc are ice, a straight line reaching
+    ``target`` (the freezing temperature) at zc; those below are water, a constant. inf
+    where either layer has too few sensors (3 ice, 2 water).
+    """
+    zc = grid[:, None]
+    ice = z[None, :] <= zc
+    dz = np.where(ice, z[None, :] - zc, 0.0)
+    dt = np.where(ice, t[None, :] - target, 0.0)
+    sxx = np.sum(dz * dz, axis=1)
+    sxy = np.sum(dz * dt, axis=1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        sse_ice = np.sum(dt * dt, axis=1) - np.where(sxx > 0, sxy * sxy / sxx, 0.0)
+    wat = ~ice
+    nw = wat.sum(axis=1)
+    tw_sum = np.sum(np.where(wat, t[None, :], 0.0), axis=1)
+    tw_sq = np.sum(np.where(wat, t[None, :] ** 2, 0.0), axis=1)
+    sse_w = np.where(nw > 0, tw_sq - tw_sum ** 2 / np.maximum(nw, 1), 0.0)
+    ok = (ice.sum(axis=1) >= 3) & (nw >= 2)
+    return np.where(ok, sse_ice + sse_w, np.inf)
+
+
+def _minimum(grid: np.ndarray, cost: np.ndarray, n_obs: int, breaks=()) -> tuple[float, float]:
+    """Sub-grid minimum of a cost curve (parabola through the lowest point and its
+    neighbours, unless one of ``breaks``, where the curve jumps, lies between them) and
+    the width of its 95 % interval: the candidates within 3.84 sigma^2
+    of the minimum (chi-square, one degree of freedom), sigma^2 = min cost / (n_obs - 3).
+    """
+    if not np.isfinite(cost).any():
+        return np.nan, np.nan
+    k = int(np.argmin(cost))
+    best = float(grid[k])
+    sigma2 = max(float(cost[k]) / max(n_obs - 3, 1), 1e-12)
+    near = grid[cost <= cost[k] + 3.84 * sigma2]
+    width = float(near.max() - near.min())
+    smooth = 0 < k < grid.size - 1 and not np.any(
+        (np.asarray(breaks) > grid[max(k - 1, 0)] - 1e-9)
+        & (np.asarray(breaks) < grid[min(k + 1, grid.size - 1)] + 1e-9))
+    if smooth and np.isfinite(cost[k - 1]) and np.isfinite(cost[k + 1]):
+        den = cost[k - 1] - 2.0 * cost[k] + cost[k + 1]
+        if den > 0:
+            h = 0.5 * (grid[k + 1] - grid[k - 1])
+            best += 0.5 * h * (cost[k - 1] - cost[k + 1]) / den
+    return best, width
+
+
+def _interface_fit(zv: np.ndarray, tv: np.ndarray, target: float, z_lo: float, z_hi: float,
+                   water_span_m: float, step_m: float) -> tuple[float, float]:
+    """Interface depth by a two-layer least-squares fit of one temperature profile.
+
+    Candidates lie on a grid of ``step_m`` in [z_lo, z_hi]; the sensors are a fixed set
+    (from ``z_lo`` to ``z_hi + water_span_m``) so that the costs compare. The known
+    interface temperature lets the ice line locate the base even where the water is
+    barely warmer than the ice just above it. Returns the depth and the width of its
+    95 % interval (see :func:`_minimum`).
+    """
+    use = (zv >= z_lo - 1e-9) & (zv <= z_hi + water_span_m + 1e-9)
+    if use.sum() < 5:
+        return np.nan, np.nan
+    # the sensors' own depths are candidates too (the cost jumps there)
+    zu = zv[use]
+    grid = np.union1d(np.arange(z_lo, z_hi + 0.5 * step_m, step_m),
+                      zu[(zu >= z_lo) & (zu <= z_hi)])
+    return _minimum(grid, _two_layer_cost(zv[use], tv[use], target, grid), int(use.sum()),
+                    breaks=zv[use])
+
+
 def find_ice_bottom(
     temperature: xr.DataArray,
     depth_m,
@@ -235,6 +304,11 @@ def find_ice_bottom(
     heated_rise: xr.DataArray | None = None,
     rise_factor: float = 1.5,
     freezing_temperature_degC=None,
+    refine: bool = True,
+    top_m=None,
+    max_width_m: float = 0.1,
+    water_span_m: float = 0.3,
+    step_m: float = 0.0025,
 ) -> xr.Dataset:
     """Ice-ocean interface per time step (unsmoothed), in the string's frame.
 
@@ -245,7 +319,16 @@ def find_ice_bottom(
     within ``span_m`` above it (at least 3) must have |dT/dz| >= ``min_gradient_K_m``;
     the interface is where the line meets the freezing temperature of the water below
     (``freezing_temperature_degC``: the ice base is at the freezing point, while the
-    mixed layer is usually warmer) or, without it, T_w; it is kept between the ice
+    mixed layer is usually warmer) or, without it, T_w. With ``refine`` (the default)
+    and a freezing temperature, that first estimate only bounds a search: the interface is the depth that best
+    splits the sensors from ``span_m`` above the ice sensor (but below the top surface
+    ``top_m`` plus one spacing, so that air and snow stay out) down to the shallowest
+    water sensor, plus ``water_span_m`` of water, into ice, a line reaching the freezing
+    temperature at the interface, and water, a constant (least squares over candidates
+    ``step_m`` apart, refined between them by a parabola); a step whose 95 % interval
+    (chi-square on the residual variance) is wider than ``max_width_m`` is not found,
+    as happens when the ice is nearly isothermal at the freezing point and the
+    interface cannot be seen in temperature. The interface is kept between the ice
     sensor and the shallowest water sensor; a crossing farther below the ice sensor
     than (|T_w - target| + 2 ``departure_K``) / |dT/dz| plus one sensor spacing is a
     step, not a gradient, and counts as not found. With ``heated_rise``, the deeper of
@@ -269,6 +352,13 @@ def find_ice_bottom(
         In-situ freezing temperature of the water under the ice [degC] (e.g. from the
         profiles' shallowest salinity, :func:`floeheat.storage.surface_freezing_temperature`);
         NaN entries fall back to T_w.
+    refine : bool
+        Use the two-layer fit (above); False keeps the line crossing.
+    top_m : float or array_like (time,), optional
+        Top surface [m, positive down] (smoothed :func:`find_top_surface`).
+    max_width_m, water_span_m, step_m : float
+        Widest accepted 95 % interval [m]; water sensors used below the search [m];
+        candidate spacing [m].
 
     Returns
     -------
@@ -287,6 +377,8 @@ def find_ice_bottom(
     """
     t, z, order = _tz(temperature, depth_m)
     nt = t.shape[0]
+    spacing = float(np.median(np.diff(z))) if z.size > 1 else 0.0
+    ztop = np.broadcast_to(np.asarray(np.nan if top_m is None else top_m, dtype=float), (nt,))
     zb = np.full(nt, np.nan)
     tw_out = np.full(nt, np.nan)
     grad = np.full(nt, np.nan)
@@ -330,6 +422,15 @@ def find_ice_bottom(
             g, a = g_new, a_new
         target = tf[i] if np.isfinite(tf[i]) else tw
         zc = (target - a) / g
+        if refine and np.isfinite(tf[i]):
+            z_lo = zv[j] - span_m
+            if np.isfinite(ztop[i]):
+                z_lo = max(z_lo, ztop[i] + spacing)
+            zr, width = _interface_fit(zv, tv, target, z_lo, zv[-n_water],
+                                       water_span_m=water_span_m, step_m=step_m)
+            if not (np.isfinite(zr) and width <= max_width_m):
+                continue
+            zc = zr
         # a line reaching the target far below the ice sensor marks a step (e.g. air
         # over water-temperature ice), not a gradient: not found
         if zc - zv[j] > (abs(tw - target) + 2.0 * departure_K) / abs(g) + (zv[j + 1] - zv[j]):
@@ -346,7 +447,6 @@ def find_ice_bottom(
         # (linear between cycles up to HEATED_MAX_GAP). Where the temperature pick
         # strays farther than one sensor spacing from it (water barely above freezing
         # hides the interface from temperature alone), the heating pick wins.
-        spacing = float(np.median(np.diff(z))) if z.size > 1 else 0.0
         # a heating pick far from its neighbouring cycles' median is a bad cycle
         ok = np.flatnonzero(np.isfinite(zh))
         if ok.size >= 3:
@@ -851,9 +951,10 @@ def ice_base(
         tf = (np.interp(temp["time"].values.astype("int64"),
                         tf["time"].values.astype("int64"), tf.values)
               if tf.sizes["time"] else None)
-    raw = find_ice_bottom(temp, depth, span_m=fit_span_m, heated_rise=rise,
-                          freezing_temperature_degC=tf)
     top_raw = find_top_surface(temp, depth, heated_rise=rise)
+    raw = find_ice_bottom(temp, depth, span_m=fit_span_m, heated_rise=rise,
+                          top_m=smooth_in_time(top_raw, smooth_hours).values,
+                          freezing_temperature_degC=tf)
     zb_th = smooth_in_time(raw.z_b, smooth_hours)
     z_top = smooth_in_time(top_raw, smooth_hours)
     zb = zb_th
@@ -867,7 +968,11 @@ def ice_base(
         attrs.update({f"sounder_{k}": v for k, v in compare_with_sounder(zb_th, snd).items()})
     zb = zb.assign_attrs(units="m", positive="down", standard_name="sea_ice_draft",
                          long_name="ice bottom in the string's frame")
-    fc = conductive_flux(temp, depth, zb, span_m=fit_span_m, conductivity=conductivity,
+    # the sensor nearest the interface is the one most often misread as ice or water:
+    # the fit band ends half a sensor spacing above the bottom
+    half_spacing = 0.5 * float(np.median(np.diff(np.sort(depth)))) if depth.size > 1 else 0.0
+    fc = conductive_flux(temp, depth, zb, span_m=fit_span_m, gap_m=half_spacing,
+                         conductivity=conductivity,
                          k_ice_W_m_K=k_ice_W_m_K, salinity_ppt=bulk_salinity_ppt)
     if latent_heat == "enthalpy":
         e = melt_energy_per_volume("enthalpy", raw.water_temperature.values,

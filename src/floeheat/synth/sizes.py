@@ -106,7 +106,7 @@ SIZES: dict[str, SizeSpec] = {
         name="tiny", n_arrays=2, deployments_per_array=(2, 1), record_days=26.0,
         record_offset_days=54.0, window_margin_days=2.0, array_spacing_m=60_000.0,
         scene_px=200, scene_res_m=200.0, scene_every_days=1.0, backscatter_count=2,
-        tile_res_m=50.0, tile_n=1024, string_spacing_m=0.05, string_step_h=2,
+        tile_res_m=50.0, tile_n=1024, string_spacing_m=0.02, string_step_h=1,
         profile_step_h=3, profile_max_dbar=120.0, sw_dlat_deg=0.25, sw_dlon_deg=1.0,
         sw_margin_deg=0.5, pm_margin_m=150_000.0,
     ),

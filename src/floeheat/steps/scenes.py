@@ -6,7 +6,14 @@ the track and the radii whose circle the scene's footprint covers at least to th
 threshold (science.md: the same rule decides matching and counting). The radar stage
 then reads, per matched scene, only the window of pixels the deployment's largest
 circle needs, and computes f_ow and the exact valid
-coverage for every radius from that one read.
+coverage for every radius from that one read, and the buoy's floe context
+(:mod:`floeheat.floes`) in the circle of ``floe_radius_m`` from the same window.
+
+Masks are read from the archive; backscatter acquisitions from their classified stores
+(stage ``classify``, :func:`floeheat.steps.classify.open_classified`), read alike. An
+acquisition that the archive also holds as a mask (a matched mask of the same time) is
+served by the mask. Column ``content`` of the fractions and floe tables, and the record's
+``radar_input``, say which each value came from.
 """
 
 from __future__ import annotations
@@ -17,13 +24,14 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from floeheat import openwater
+from floeheat import floes, openwater
 from floeheat import track as trk
 from floeheat.errors import ArchiveError
 from floeheat.io.scenes import open_scene
 from floeheat.steps.status import StageFailed, atomic_path, read_status, run_stage
 
-__all__ = ["MATCH_COLUMNS", "FRACTION_COLUMNS", "FOOTPRINT_COLUMNS", "run_scene_footprints",
+__all__ = ["MATCH_COLUMNS", "FRACTION_COLUMNS", "FLOE_COLUMNS", "FOOTPRINT_COLUMNS",
+           "run_scene_footprints",
            "match_track", "run_match_scenes", "run_radar", "position_at", "read_track"]
 
 log = logging.getLogger(__name__)
@@ -33,11 +41,13 @@ MATCH_COLUMNS = ("deployment_id", "scene_id", "path", "time", "content", "band",
                  "radius_m", "footprint_coverage")
 #: Columns of a deployment's radar_fractions.csv.
 FRACTION_COLUMNS = ("scene_id", "time", "radius_m", "f_ow", "coverage", "n_water",
-                    "n_valid", "n_circle", "accepted")
-
-#: Scenes whose content the radar source reads directly. Backscatter scenes are served
-#: by a per-scene classification stage (they are matched but not yet read here).
-_READABLE = ("mask",)
+                    "n_valid", "n_circle", "accepted", "content")
+#: Columns of a deployment's floe_context.csv (one row per scene; floes.FloeContext).
+FLOE_COLUMNS = ("scene_id", "time", "content", "radius_m", "buoy_class", "floe_area_m2",
+                "floe_diameter_m", "floe_at_rim", "distance_to_water_m",
+                "distance_to_nodata_m", "n_leads_crossing", "n_leads_touching", "n_circle")
+#: Content labels of the two kinds of input.
+MASK, CLASSIFIED = "mask", "classified backscatter"
 
 
 def read_track(path: str | Path) -> pd.DataFrame:
@@ -136,18 +146,38 @@ def run_match_scenes(footprints_csv: str, insitu_status: str, matches_csv: str, 
     return matches
 
 
+def _inputs(archive: Path, matched: list[dict], classified: dict, mask_codes: dict) -> list:
+    """(label, time, content, opener) per scene to read: masks, and the classified store
+    of each backscatter acquisition whose time no matched mask shares."""
+    from floeheat.steps.classify import open_classified
+
+    out, seen = [], set()
+    mask_times = {m["time"] for m in matched if m["content"] == "mask"}
+    for m in sorted(matched, key=lambda m: (m["time"], m["scene_id"])):
+        if m["content"] == "mask" and m["scene_id"] not in seen:
+            seen.add(m["scene_id"])
+            out.append((m["scene_id"], m["time"], MASK, lambda m=m: open_scene(
+                archive / m["path"], "mask", mask_codes=mask_codes)))
+        elif (m["content"] == "backscatter" and m["time"] not in mask_times
+              and m["scene_id"] in classified):
+            store = Path(classified[m["scene_id"]])
+            label = store.name.removesuffix(".zarr")
+            if label not in seen and store.exists():
+                seen.add(label)
+                out.append((label, m["time"], CLASSIFIED, lambda s=store: open_classified(s)))
+    return out
+
+
 def _fractions(archive: Path, track: pd.DataFrame, matched: list[dict], radii_m: list[float],
-               coverage_threshold: float, mask_codes: dict) -> pd.DataFrame:
+               coverage_threshold: float, mask_codes: dict, classified: dict | None = None,
+               floe_radius_m: float | None = None) -> tuple[pd.DataFrame, pd.DataFrame]:
     radii = np.asarray(sorted(radii_m), dtype=float)
-    rows = []
-    by_scene: dict[str, dict] = {}
-    for m in matched:
-        by_scene.setdefault(m["scene_id"], m)
-    for scene_id, m in sorted(by_scene.items(), key=lambda kv: (kv[1]["time"], kv[0])):
-        if m["content"] not in _READABLE:
-            continue
-        t = np.datetime64(pd.Timestamp(m["time"]).tz_localize(None), "ns")
-        with open_scene(archive / m["path"], m["content"], mask_codes=mask_codes) as sc:
+    floe_r = float(min(floe_radius_m or radii[-1], radii[-1]))
+    rows, floe_rows = [], []
+    for label, time, content, opener in _inputs(archive, matched, classified or {},
+                                                mask_codes):
+        t = np.datetime64(pd.Timestamp(time).tz_localize(None), "ns")
+        with opener() as sc:
             lat, lon, x, y = position_at(track, [t], sc.crs)
             if not np.isfinite(x[0]):
                 continue
@@ -161,17 +191,27 @@ def _fractions(archive: Path, track: pd.DataFrame, matched: list[dict], radii_m:
             stats = openwater.circle_fractions(
                 pixels, window[0].start, window[1].start, sc.transform, sc.shape, x[0], y[0],
                 radii_proj, coverage_threshold=coverage_threshold)
+            k_scale = float(radii_proj[-1] / radii[-1])
+            fc = floes.floe_context(pixels, window[0].start, window[1].start, sc.transform,
+                                    sc.shape, x[0], y[0], floe_r * k_scale, k_scale)
         for k, r in enumerate(radii):
-            rows.append((scene_id, m["time"], float(r), float(stats.f_ow[k]),
+            rows.append((label, time, float(r), float(stats.f_ow[k]),
                          float(stats.coverage[k]), int(stats.n_water[k]),
                          int(stats.n_valid[k]), int(stats.n_circle[k]),
-                         bool(stats.accepted[k])))
-    return pd.DataFrame(rows, columns=list(FRACTION_COLUMNS))
+                         bool(stats.accepted[k]), content))
+        floe_rows.append((label, time, content, floe_r, *fc))
+    return (pd.DataFrame(rows, columns=list(FRACTION_COLUMNS)),
+            pd.DataFrame(floe_rows, columns=list(FLOE_COLUMNS)))
 
 
 def run_radar(archive: str, insitu_status: str, matches_csv: str, status_path: str, *,
-              radii_m: list[float], coverage_threshold: float, mask_codes: dict) -> dict:
-    """Open-water fractions of one deployment from its matched scenes."""
+              radii_m: list[float], coverage_threshold: float, mask_codes: dict,
+              classified: dict | None = None, floe_radius_m: float | None = None) -> dict:
+    """Open-water fractions and floe context of one deployment from its matched scenes.
+
+    ``classified`` maps backscatter scene_id -> its classified store (stage classify);
+    ``floe_radius_m`` is the circle of the floe context (at most the largest radius).
+    """
     matched = pd.read_csv(matches_csv, dtype={"band": str, "scene_id": str},
                           keep_default_na=False).to_dict(orient="records")
     status = Path(status_path)
@@ -181,20 +221,30 @@ def run_radar(archive: str, insitu_status: str, matches_csv: str, status_path: s
     def work() -> dict:
         record = read_status(insitu_status)
         track = read_track(record["track"])
-        table = _fractions(Path(archive), track, matched, radii_m, coverage_threshold,
-                           mask_codes)
-        n_backscatter = len({m["scene_id"] for m in matched if m["content"] not in _READABLE})
-        if n_backscatter:
-            log.warning("%d matched backscatter scenes await classification and are not "
-                        "read by the radar source", n_backscatter)
+        table, floe_table = _fractions(Path(archive), track, matched, radii_m,
+                                       coverage_threshold, mask_codes, classified,
+                                       floe_radius_m)
+        missing = sorted({m["scene_id"] for m in matched if m["content"] == "backscatter"
+                          and m["scene_id"] not in (classified or {})})
+        if missing:
+            log.warning("%d matched backscatter scenes have no classified store: %s",
+                        len(missing), " ".join(missing))
         path = work_dir / "radar_fractions.csv"
+        floe_path = status.parent.parent / "floe_context.csv"
         path.parent.mkdir(parents=True, exist_ok=True)
         with atomic_path(path) as tmp:
             table.to_csv(tmp, index=False, float_format="%.10g", lineterminator="\n")
-        if table.empty and matched and not n_backscatter:
+        with atomic_path(floe_path) as tmp:
+            floe_table.to_csv(tmp, index=False, float_format="%.10g", lineterminator="\n")
+        if table.empty and matched:
             raise StageFailed(f"deployment {dep}: none of its {len(matched)} matched scenes "
                               "could be read around the buoy")
-        return {"radar_fractions": str(path), "n_scenes": int(table["scene_id"].nunique()),
-                "n_backscatter_pending": n_backscatter}
+        per = floe_table.groupby("content")["scene_id"].nunique()
+        used = [c for c in (MASK, CLASSIFIED) if per.get(c, 0)]
+        return {"radar_fractions": str(path), "floe_context": str(floe_path),
+                "n_scenes": int(table["scene_id"].nunique()),
+                "n_scenes_mask": int(per.get(MASK, 0)),
+                "n_scenes_classified": int(per.get(CLASSIFIED, 0)),
+                "radar_input": " and ".join(used) or "none"}
 
     return run_stage("radar", dep, status, work, upstream=[Path(insitu_status)])

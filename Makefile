@@ -5,7 +5,7 @@ VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 
-.PHONY: venv demo test lint lock clean
+.PHONY: venv demo test lint lock clean bench
 
 venv: $(STAMP)
 
@@ -24,6 +24,11 @@ demo: $(STAMP)
 
 test: $(STAMP)
 	$(BIN)/python -m pytest -q
+
+# Benchmarks (benchmarks/README.md): every target at the issue's sizes; pass e.g.
+# BENCH_ARGS="--only 1 --scale quick" to run one target at a reduced size.
+bench: $(STAMP)
+	$(BIN)/python -m benchmarks $(BENCH_ARGS)
 
 lint: $(STAMP)
 	$(BIN)/ruff check src tests

@@ -30,10 +30,12 @@ if workflow.is_main_process:
 include: "workflow/rules/common.smk"
 include: "workflow/rules/archive.smk"
 include: "workflow/rules/insitu.smk"
+include: "workflow/rules/classify.smk"
 include: "workflow/rules/scenes.smk"
 include: "workflow/rules/forcing.smk"
 include: "workflow/rules/budget.smk"
 include: "workflow/rules/tables.smk"
+include: "workflow/rules/checks.smk"
 include: "workflow/rules/figures.smk"
 
 
@@ -42,6 +44,9 @@ rule all:
         f"{RESULTS}/tables/seasonal.csv",
         f"{RESULTS}/tables/climatology.csv",
         f"{RESULTS}/tables/failures.csv",
+        f"{RESULTS}/tables/classification_agreement.csv",
+        f"{RESULTS}/tables/screen.csv",
+        f"{RESULTS}/tables/bulkflux.csv",
         f"{RESULTS}/figures",
         f"{RESULTS}/manifest.json",
     default_target: True

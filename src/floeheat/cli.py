@@ -25,7 +25,7 @@ def _cmd_synth(args: argparse.Namespace) -> int:
               file=sys.stderr)
         return 2
     truth_path = write_archive(Path(args.outdir), seed=args.seed, size=args.size,
-                               hemisphere=args.hemisphere)
+                               hemisphere=args.hemisphere, variant=args.variant)
     print(f"archive written to {args.outdir}")
     print(f"truth written to {truth_path} (outside the archive)")
     return 0
@@ -97,6 +97,9 @@ def build_parser() -> argparse.ArgumentParser:
                    help="tiny (tests), demo (default), or a benchmark size")
     p.add_argument("--hemisphere", choices=["north", "south"], default="north",
                    help="which polar ocean the invented scenario lies in (default north)")
+    p.add_argument("--variant", choices=["none", "shelf"], default="none",
+                   help="scenario variant: shelf puts a shallow bank where one array's "
+                        "track ends (default none)")
     p.set_defaults(func=_cmd_synth)
 
     p = sub.add_parser(

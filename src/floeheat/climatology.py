@@ -193,7 +193,8 @@ def _ratio(num: float, den: float) -> float:
 
 
 def climatology_table(windows: pd.DataFrame, region_names, *, n_boot: int = 1000,
-                      seed: int = 0, split_ice_type: bool = False) -> pd.DataFrame:
+                      seed: int = 0, split_ice_type: bool = False,
+                      member_values=None) -> pd.DataFrame:
     """Aggregate window records into the climatology table of outputs.md.
 
     Parameters
@@ -212,6 +213,10 @@ def climatology_table(windows: pd.DataFrame, region_names, *, n_boot: int = 1000
         on scheduling.
     split_ice_type : bool
         Add ``ice_type`` to the grouping (when the archive gives ice types).
+    member_values : numpy.ndarray (n_records, n_member), optional
+        Each record's ensemble members of ``t_ice`` (row order of ``windows``); the
+        interval then combines the array bootstrap with the ensemble
+        (:func:`floeheat.ensemble.bootstrap_median_with_members`).
 
     Returns
     -------
@@ -236,6 +241,7 @@ def climatology_table(windows: pd.DataFrame, region_names, *, n_boot: int = 1000
     [['r1', 7, 2, 0.05]]
     """
     df = windows.copy()
+    df["_row"] = np.arange(len(df))  # position in member_values
     df["region"] = np.asarray(region_names, dtype=str)
     df = df[df["region"] != ""]
     mid = df["window_start"] + (df["window_end"] - df["window_start"]) / 2
@@ -256,8 +262,16 @@ def climatology_table(windows: pd.DataFrame, region_names, *, n_boot: int = 1000
     for (key, cell), stream in zip(groups, streams):
         t = cell["t_ice"].to_numpy(float)
         finite = np.isfinite(t)
-        lo, hi = bootstrap_median_by_array(t, cell["array_id"].astype(str).to_numpy(),
-                                           n_boot, np.random.default_rng(stream))
+        if member_values is None:
+            lo, hi = bootstrap_median_by_array(t, cell["array_id"].astype(str).to_numpy(),
+                                               n_boot, np.random.default_rng(stream))
+        else:  # the ensemble's members too (floeheat.ensemble)
+            from floeheat.ensemble import bootstrap_median_with_members
+
+            lo, hi = bootstrap_median_with_members(
+                t, member_values[cell["_row"].to_numpy()],
+                cell["array_id"].astype(str).to_numpy(), n_boot,
+                np.random.default_rng(stream))
         energy = cell[["sw_down_MJ", "q_ow_MJ", "q_tr_MJ", "q_st_MJ", "q_w_MJ"]]
         energy = energy[np.isfinite(energy.to_numpy(float)).all(axis=1)].sum()
         entered = energy["q_ow_MJ"] + energy["q_tr_MJ"]

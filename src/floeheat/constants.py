@@ -38,6 +38,28 @@ __all__ = [
     "MASK_CODES",
     "MAX_DRIFT_SPEED_M_S",
     "SECONDS_PER_DAY",
+    "ENSEMBLE_MEMBERS",
+    "ENSEMBLE_CHUNK_MEMBERS",
+    "ALBEDO_OPEN_WATER_SD",
+    "RHO_ICE_HALF_WIDTH_KG_M3",
+    "LATENT_HEAT_REL_HALF_WIDTH",
+    "K_ICE_SD_W_M_K",
+    "BULK_SALINITY_SD",
+    "STORAGE_BOUND_HALF_WIDTH",
+    "ICE_BOTTOM_PICK_SD_SPACINGS",
+    "ICE_SENSOR_SPACING_DEFAULT_M",
+    "SHORTWAVE_BIAS_SD",
+    "COVERAGE_THRESHOLD_HALF_WIDTH",
+    "F_OW_CORRELATION_LENGTH_M",
+    "ICE_OCEAN_DRAG_COEFFICIENT",
+    "SCREEN_ISOBATH_M",
+    "SCREEN_DISTANCE_M",
+    "SCREEN_MAX_DAILY_SPEED_M_S",
+    "SCREEN_MAX_SEPARATION_CHANGE_M",
+    "SCREEN_OUTLIER_MAD",
+    "SCREEN_OUTLIER_FLOOR_W_M2",
+    "BULK_DISAGREE_FACTOR",
+    "BULK_MIN_FLUX_W_M2",
 ]
 
 # --- Seawater (TEOS-10) ---------------------------------------------------------
@@ -121,3 +143,70 @@ CLIMATOLOGY_CELL_M = 200_000.0
 MASK_CODES = {"water": 0, "ice": 1, "nodata": 255}
 
 SECONDS_PER_DAY = 86_400.0
+
+# --- Uncertainty ensemble (floeheat.ensemble; spreads around the configured values) ---
+#: Ensemble size. Common practice, no source (enough for stable 5th/95th percentiles).
+ENSEMBLE_MEMBERS = 200
+#: Members per dask block. Common practice, no source.
+ENSEMBLE_CHUNK_MEMBERS = 50
+#: Standard deviation of the open-water albedo. Source: Pegau & Paulson 2001
+#: (Ann. Glaciol. 33), leads under cloudy skies 0.066 +- 0.007.
+ALBEDO_OPEN_WATER_SD = 0.007
+#: Half-width of a uniform ice density spread. Source: Timco & Frederking 1996
+#: (Cold Reg. Sci. Technol. 24): 900-940 kg m-3 for first-year ice below the waterline.
+RHO_ICE_HALF_WIDTH_KG_M3 = 20.0
+#: Half-width of a uniform relative spread of L: about half of the 11 % between fresh-ice
+#: L and the Bitz & Lipscomb 1999 melt energy of 4 g kg-1 ice at -1.8 degC (computed from
+#: their enthalpy; see tests/test_ensemble.py).
+LATENT_HEAT_REL_HALF_WIDTH = 0.06
+#: Standard deviation of k_i (or k0). Source: Pringle et al. 2006 (measured in situ),
+#: measured 2.14 +- 0.11 (first-year) and 1.88 +- 0.13 (multiyear) W m-1 K-1.
+K_ICE_SD_W_M_K = 0.12
+#: Standard deviation of the bulk salinity in the salinity form of k_i. Common practice,
+#: no source.
+BULK_SALINITY_SD = 1.0
+#: Half-width of the storage bound's uniform spread, in units of the sensitivity offset
+#: (the bound anywhere within +- offset of z2). Common practice, no source.
+STORAGE_BOUND_HALF_WIDTH = 1.0
+#: Standard deviation of the ice-bottom pick at each end of the window, in sensor
+#: spacings. Common practice, no source ("about a sensor spacing").
+ICE_BOTTOM_PICK_SD_SPACINGS = 1.0
+#: Sensor spacing assumed when the in-situ record gives none. Common practice, no source.
+ICE_SENSOR_SPACING_DEFAULT_M = 0.02
+#: Standard deviation of a multiplicative bias of the shortwave forcing. Common practice,
+#: no source.
+SHORTWAVE_BIAS_SD = 0.07
+#: Half-width of the coverage threshold's uniform spread. Common practice, no source.
+COVERAGE_THRESHOLD_HALF_WIDTH = 0.1
+#: Size of an independent patch of the ice cover for the sampling error of a scene's
+#: f_ow. Common practice, no source (lead spacing of the order of a kilometre).
+F_OW_CORRELATION_LENGTH_M = 1000.0
+
+# --- Where a 1-D budget holds: screens and the bulk-flux cross-check --------------
+#: Ice-ocean drag coefficient in u* = sqrt(Cd) |u_ice - u_water|. Source: McPhee 1980
+#: (in Sea Ice Processes and Models, ed. Pritchard), 5.5e-3; from memory.
+ICE_OCEAN_DRAG_COEFFICIENT = 5.5e-3
+#: Isobath that marks shelves and slopes for the advection screen [m]. Common practice,
+#: no source (the shelf break lies shallower; the slope current above it).
+SCREEN_ISOBATH_M = 1000.0
+#: Windows that come within this ground distance of the isobath are flagged [m].
+#: Common practice, no source (about the width of a slope boundary current).
+SCREEN_DISTANCE_M = 50_000.0
+#: Daily-mean drift speed above which a window is flagged [m s-1]. Common practice,
+#: no source (summer pack ice rarely drifts faster than about 0.5 m s-1 for a day).
+SCREEN_MAX_DAILY_SPEED_M_S = 0.5
+#: Change of the distance between two deployments of one array within a window above
+#: which the window is flagged as shear [m]. Common practice, no source.
+SCREEN_MAX_SEPARATION_CHANGE_M = 10_000.0
+#: Robust z-score (scaled median absolute deviations) of a residual outlier.
+#: Common practice, no source.
+SCREEN_OUTLIER_MAD = 3.0
+#: Smallest departure of a window's transmitted flux from its array's median that can
+#: flag it [W m-2]. Common practice, no source.
+SCREEN_OUTLIER_FLOOR_W_M2 = 2.0
+#: Measured and bulk ocean-to-ice flux disagree when their ratio exceeds this factor
+#: (either way). Common practice, no source.
+BULK_DISAGREE_FACTOR = 2.0
+#: Below this magnitude both fluxes count as zero and are not compared [W m-2].
+#: Common practice, no source.
+BULK_MIN_FLUX_W_M2 = 1.0

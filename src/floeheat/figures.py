@@ -16,8 +16,9 @@ import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
 import xarray as xr  # noqa: E402
 
-__all__ = ["PALETTE", "budget_figure", "openwater_figure", "transmittance_figure",
-           "track_map_figure", "climatology_figure", "save_figure"]
+__all__ = ["PALETTE", "budget_figure", "openwater_figure", "floe_context_figure",
+           "transmittance_figure",
+           "track_map_figure", "climatology_figure", "attribution_figure", "save_figure"]
 
 #: Okabe & Ito (2008), "Color Universal Design": colour-blind-safe qualitative colours.
 PALETTE = ("#0072B2", "#E69F00", "#009E73", "#D55E00", "#CC79A7", "#56B4E9", "#F0E442",
@@ -95,6 +96,40 @@ def openwater_figure(ds: xr.Dataset, scene_times, title: str):
     return fig
 
 
+def floe_context_figure(floes: pd.DataFrame, title: str):
+    """The buoy's floe through the season: equivalent diameter (open markers where the
+    floe reaches the circle's rim, a lower bound), distance to the nearest open water,
+    and the number of leads crossing the circle; filled markers from masks, crosses from
+    classified backscatter."""
+    fig, axes = plt.subplots(3, 1, figsize=(8, 7), sharex=True)
+    t = pd.to_datetime(floes["time"], utc=True).dt.tz_localize(None).to_numpy()
+    radius_km = float(floes["radius_m"].iloc[0]) / 1000 if len(floes) else float("nan")
+    panels = (("floe_diameter_m", 1e-3, "floe equivalent\ndiameter (km)", PALETTE[0]),
+              ("distance_to_water_m", 1e-3, "distance to\nopen water (km)", PALETTE[1]),
+              ("n_leads_crossing", 1.0, "leads crossing\nthe circle (count)", PALETTE[2]))
+    for ax, (col, scale, label, color) in zip(axes, panels):
+        v = floes[col].to_numpy(float) * scale
+        for content, marker in (("mask", "o"), ("classified backscatter", "x")):
+            sel = (floes["content"] == content).to_numpy()
+            if col == "floe_diameter_m":
+                rim = floes["floe_at_rim"].astype(str).str.lower().eq("true").to_numpy()
+                ax.plot(t[sel & ~rim], v[sel & ~rim], marker, color=color, linestyle="none",
+                        label=f"{content}, floe inside the circle")
+                ax.plot(t[sel & rim], v[sel & rim], marker, color=color, linestyle="none",
+                        mfc="none", label=f"{content}, floe at the rim (lower bound)")
+            else:
+                ax.plot(t[sel], v[sel], marker, color=color, linestyle="none", label=content)
+        ax.set_ylabel(label)
+        ax.set_ylim(bottom=0)
+        handles = [h for h in ax.get_lines() if len(h.get_xdata())]
+        if handles:
+            ax.legend(handles=handles, fontsize=7)
+    axes[-1].set_xlabel("time (UTC)")
+    axes[-1].tick_params(axis="x", labelrotation=30)
+    axes[0].set_title(f"{title}: the buoy's floe within {radius_km:g} km")
+    return fig
+
+
 def transmittance_figure(ds: xr.Dataset, seasonal: pd.DataFrame, title: str):
     """Window transmittance per source at the largest radius, with the season value and
     its interval as a band."""
@@ -168,4 +203,167 @@ def climatology_figure(clim: pd.DataFrame):
     ax.set_xticks(range(1, 13))
     ax.set_title("climatology")
     ax.legend(fontsize=7)
+    return fig
+
+
+def attribution_figure(attribution: pd.DataFrame, label: str = ""):
+    """Which input dominates the spread of each deployment's season transmittance.
+
+    One horizontal bar per deployment, split by each ensemble factor's variance share
+    (its one-at-a-time variance over the sum over factors; the bar sums to 1), with the
+    90 % interval written beside it.
+
+    Parameters
+    ----------
+    attribution : pandas.DataFrame
+        One row per deployment: ``deployment_id``, ``t_ice``, ``t_ice_lo``, ``t_ice_hi``
+        and ``share_<factor>`` columns (tables/attribution.csv, one source and radius).
+    label : str
+        The source and radius shown, for the title.
+
+    Examples
+    --------
+    >>> a = pd.DataFrame({"deployment_id": ["B1"], "t_ice": [0.03], "t_ice_lo": [0.02],
+    ...                   "t_ice_hi": [0.05], "share_albedo_ow": [0.2],
+    ...                   "share_shortwave_bias": [0.8]})
+    >>> fig = attribution_figure(a, "radar 15 km"); len(fig.axes)
+    1
+    """
+    shares = [c for c in attribution.columns if c.startswith("share_")
+              and attribution[c].fillna(0.0).abs().sum() > 0]
+    rows = attribution.sort_values("deployment_id", ascending=False).reset_index(drop=True)
+    fig, ax = plt.subplots(figsize=(8.5, 1.2 + 0.45 * max(len(rows), 1)))
+    if rows.empty or not shares:
+        ax.text(0.5, 0.5, "no ensemble", ha="center", transform=ax.transAxes)
+    left = np.zeros(len(rows))
+    # one colour per factor, the same in every run (the palette and a grey)
+    order = [c for c in attribution.columns if c.startswith("share_")]
+    colours = PALETTE + ("#999999",)
+    for col in shares:
+        k = order.index(col)
+        v = rows[col].fillna(0.0).to_numpy(float)
+        ax.barh(rows["deployment_id"], v, left=left, color=colours[k % len(colours)],
+                hatch="//" if k >= len(colours) else "", edgecolor="white",
+                label=col.removeprefix("share_").replace("_", " "))
+        left += v
+    for i, r in rows.iterrows():
+        ax.annotate(f"{r['t_ice']:.3f} [{r['t_ice_lo']:.3f}, {r['t_ice_hi']:.3f}]",
+                    (1.01, i), va="center", fontsize=7, annotation_clip=False)
+    ax.set_xlim(0.0, 1.0)
+    ax.set_xlabel("share of the ensemble variance of the season transmittance (1)")
+    ax.set_title("what dominates the uncertainty" + (f" ({label})" if label else "")
+                 + "; right: T_season [5th, 95th percentile]", fontsize=9)
+    if shares:
+        ax.legend(fontsize=7, ncol=5, loc="upper center",
+                  bbox_to_anchor=(0.5, -0.6 / (1.2 + 0.45 * max(len(rows), 1))))
+    return fig
+
+
+# --- where a 1-D budget holds: bulk-flux cross-check, screen, ice-type split ---------
+__all__ += ["bulkflux_figure", "screen_figure", "ice_type_figure"]
+
+
+def bulkflux_figure(windows: pd.DataFrame, whole: pd.DataFrame, factor: float = 2.0):
+    """Measured (F_b - F_c) against bulk ocean-to-ice heat flux, per window and deployment.
+
+    Examples
+    --------
+    >>> w = pd.DataFrame({"deployment_id": ["a"], "f_w_bulk_W_m2": [10.0],
+    ...                   "f_w_measured_W_m2": [9.0], "disagree": [False]})
+    >>> len(bulkflux_figure(w, w).axes)
+    1
+    """
+    fig, ax = plt.subplots(figsize=(5.5, 5))
+    vals = pd.concat([windows[["f_w_bulk_W_m2", "f_w_measured_W_m2"]],
+                      whole[["f_w_bulk_W_m2", "f_w_measured_W_m2"]]]).to_numpy(float)
+    vals = vals[np.isfinite(vals)]
+    top = float(max(np.max(np.abs(vals)) * 1.1, 1.0)) if vals.size else 1.0
+    line = np.array([0.0, top])
+    ax.plot(line, line, color="0.3", lw=1, label="1:1")
+    ax.plot(line, line * factor, color="0.6", lw=0.8, ls="--", label=f"factor {factor:g}")
+    ax.plot(line, line / factor, color="0.6", lw=0.8, ls="--")
+    for k, (dep, grp) in enumerate(windows.groupby("deployment_id", sort=True)):
+        c = PALETTE[k % len(PALETTE)]
+        ax.scatter(grp["f_w_bulk_W_m2"], grp["f_w_measured_W_m2"], color=c, s=18,
+                   alpha=0.6)
+        w = whole[whole["deployment_id"] == dep]
+        ax.scatter(w["f_w_bulk_W_m2"], w["f_w_measured_W_m2"], color=c, s=70, marker="D",
+                   edgecolor="k", label=f"{dep} (whole window)")
+    ax.set_xlim(min(0.0, *(vals if vals.size else [0.0])), top)
+    ax.set_ylim(min(0.0, *(vals if vals.size else [0.0])), top)
+    ax.set_xlabel("bulk rho cp c_h u* (T_ml - T_f) (W m-2)")
+    ax.set_ylabel("measured F_b - F_c at the ice base (W m-2)")
+    ax.set_title("ocean-to-ice heat flux: measured against bulk (dots: windows)", fontsize=9)
+    ax.legend(fontsize=7)
+    return fig
+
+
+def screen_figure(track: pd.DataFrame, summary: pd.DataFrame, distance_limit_m: float):
+    """Distance to the isobath along each track, the screening distance marked.
+
+    Examples
+    --------
+    >>> t = pd.DataFrame({"deployment_id": ["a", "a"], "time": pd.to_datetime(
+    ...     ["2025-07-01", "2025-07-02"]), "distance_to_isobath_m": [9e4, 3e4]})
+    >>> s = pd.DataFrame({"deployment_id": ["a"], "advection_screen": ["applied"],
+    ...                   "excluded_fraction": [0.5]})
+    >>> len(screen_figure(t, s, 5e4).axes)
+    1
+    """
+    fig, ax = plt.subplots(figsize=(8, 4))
+    label = str(summary["advection_screen"].iloc[0]) if len(summary) else "no deployments"
+    has = track["distance_to_isobath_m"].notna().any() if len(track) else False
+    if not has:
+        ax.text(0.5, 0.5, f"advection screen {label}", ha="center", transform=ax.transAxes)
+    else:
+        for k, (dep, grp) in enumerate(track.groupby("deployment_id", sort=True)):
+            frac = summary.loc[summary["deployment_id"] == dep, "excluded_fraction"]
+            tag = f"{dep} ({float(frac.iloc[0]):.0%} excluded)" if len(frac) else dep
+            ax.plot(pd.to_datetime(grp["time"]), grp["distance_to_isobath_m"] / 1000.0,
+                    color=PALETTE[k % len(PALETTE)], label=tag)
+        ax.axhline(distance_limit_m / 1000.0, color="0.3", ls="--", lw=1,
+                   label="screening distance")
+        ax.set_ylim(bottom=0.0)
+        ax.legend(fontsize=7)
+    ax.set_xlabel("time (UTC)")
+    ax.set_ylabel("distance to the isobath (km)")
+    ax.set_title(f"advection screen: {label}", fontsize=9)
+    fig.autofmt_xdate()
+    return fig
+
+
+def ice_type_figure(clim: pd.DataFrame, source: str, radius_m: float):
+    """Median transmittance by month for each ice type (one source and radius), with the
+    interquartile range and the number of windows.
+
+    Examples
+    --------
+    >>> c = pd.DataFrame({"source": ["radar"] * 2, "radius_m": [15000.0] * 2,
+    ...     "ice_type": ["first-year", "multiyear"], "month": [7, 7], "n_windows": [2, 1],
+    ...     "t_ice_median": [0.08, 0.03], "t_ice_p25": [0.07, 0.03],
+    ...     "t_ice_p75": [0.09, 0.03]})
+    >>> len(ice_type_figure(c, "radar", 15000.0).axes)
+    1
+    """
+    fig, ax = plt.subplots(figsize=(7, 4))
+    sel = clim[(clim["source"] == source) & (clim["radius_m"] == radius_m)] \
+        if len(clim) else clim
+    if "ice_type" not in clim.columns or sel.empty:
+        ax.text(0.5, 0.5, "no ice types in the archive", ha="center", transform=ax.transAxes)
+    else:
+        types = sorted(sel["ice_type"].fillna("").astype(str).unique())
+        for k, it in enumerate(types):
+            grp = sel[sel["ice_type"].fillna("").astype(str) == it]
+            by = grp.groupby("month").agg(t=("t_ice_median", "median"),
+                                          lo=("t_ice_p25", "median"),
+                                          hi=("t_ice_p75", "median"), n=("n_windows", "sum"))
+            x = by.index.to_numpy(float) + (k - 0.5 * (len(types) - 1)) * 0.12
+            ax.errorbar(x, by["t"], yerr=[by["t"] - by["lo"], by["hi"] - by["t"]], fmt="o",
+                        color=PALETTE[k % len(PALETTE)], capsize=3,
+                        label=f"{it or 'not given'} ({int(by['n'].sum())} windows)")
+        ax.legend(fontsize=8)
+    ax.set_xticks(range(1, 13))
+    ax.set_xlabel("month")
+    ax.set_ylabel("through-ice transmittance (1), median and IQR")
+    ax.set_title(f"climatology by ice type ({source}, {radius_m / 1000:g} km)", fontsize=9)
     return fig

@@ -320,12 +320,13 @@ def find_ice_bottom(
     the interface is where the line meets the freezing temperature of the water below
     (``freezing_temperature_degC``: the ice base is at the freezing point, while the
     mixed layer is usually warmer) or, without it, T_w. With ``refine`` (the default)
-    and a freezing temperature, that first estimate only bounds a search: the interface is the depth that best
-    splits the sensors from ``span_m`` above the ice sensor (but below the top surface
-    ``top_m`` plus one spacing, so that air and snow stay out) down to the shallowest
-    water sensor, plus ``water_span_m`` of water, into ice, a line reaching the freezing
-    temperature at the interface, and water, a constant (least squares over candidates
-    ``step_m`` apart, refined between them by a parabola); a step whose 95 % interval
+    and a freezing temperature, that first estimate only bounds a search: the
+    interface is the depth that best splits the sensors from ``span_m`` above the ice
+    sensor (but below the top surface ``top_m`` plus one spacing, so that air and snow
+    stay out) down to the shallowest water sensor, plus ``water_span_m`` of water, into
+    ice, a line reaching the freezing temperature at the interface, and water, a
+    constant (least squares over candidates ``step_m`` apart, refined between them by a
+    parabola); a step whose 95 % interval
     (chi-square on the residual variance) is wider than ``max_width_m`` is not found,
     as happens when the ice is nearly isothermal at the freezing point and the
     interface cannot be seen in temperature. The interface is kept between the ice
@@ -924,8 +925,10 @@ def ice_base(
     -------
     xarray.Dataset
         Dim ``time``: ``z_b``, ``z_b_thermistor``, ``z_top``, ``ice_thickness`` [m];
-        ``f_c`` [W m-2]; ``melt_energy`` [J m-3]; ``q_b`` [J m-2]; ``qc_z_b_not_found``,
-        ``qc_top_not_found`` (bool, raw step without estimate); ``z_b_source``.
+        ``f_c`` [W m-2]; ``t_band`` [degC] (mean temperature of the conduction fit
+        band, for the salinity form of k_i); ``melt_energy`` [J m-3]; ``q_b`` [J m-2];
+        ``qc_z_b_not_found``, ``qc_top_not_found`` (bool, raw step without estimate);
+        ``z_b_source``.
 
     Examples
     --------
@@ -996,6 +999,7 @@ def ice_base(
             units="m", standard_name="sea_ice_thickness",
             long_name="ice (and snow) thickness, bottom minus top surface"),
         "f_c": fc.f_c,
+        "t_band": fc.t_band,
         "melt_energy": e,
         "q_b": basal_melt_energy(zb, e),
         "qc_z_b_not_found": (raw.source == 0).assign_attrs(

@@ -9,6 +9,8 @@ if ARCHIVE == DEMO_ARCHIVE:
         params:
             seed=config["demo"]["seed"],
             size=config["demo"]["size"],
+            hemisphere=config["demo"]["hemisphere"],
+            variant=config["demo"]["variant"],
             outdir=DEMO_ARCHIVE,
         log:
             f"{RESULTS}/logs/synth_demo.log",

@@ -17,11 +17,14 @@ rule budget:
         microwave=config["microwave"],
         budget=config["budget"],
         radar_radii_m=config["radar"]["radii_m"],
+        ensemble=config["ensemble"],
+        ice=config["ice"],
+        coverage_threshold=config["radar"]["coverage_threshold"],
     log:
         f"{RESULTS}/logs/budget/{{deployment}}.log",
     threads: 1
     resources:
-        mem_mb=1500,
-        runtime=30,
+        mem_mb=sized_mb(1500, per_input_mb=2.0),
+        runtime=sized_min(15, per_input_gb_min=30),
     script:
         "../scripts/budget.py"

@@ -86,3 +86,129 @@ def all_stage_status(stage):
         return [f"{RESULTS}/deployments/{d}/status/{stage}.json" for d in deployment_ids()]
 
     return _inputs
+
+
+# --- where a 1-D budget holds (rules screen, bulkflux) ----------------------------
+#: Settings of rule bulkflux: its own section plus the budget's window length and the
+#: freezing point's air saturation, so that its windows match the budget's.
+BULKFLUX_SETTINGS = {
+    **config["bulkflux"],
+    "window_days": config["budget"]["window_days"],
+    "saturation_fraction": config["storage"]["saturation_fraction"],
+}
+
+
+def get_bathymetry_files(wildcards):
+    """The archive's bathymetry grid: NetCDF files classed by checkpoint index, or
+    GeoTIFF files under bathymetry/ (empty: no advection screen)."""
+    import glob
+    import json
+
+    with open(checkpoints.index.get().output.forcing) as f:
+        listing = json.load(f)
+    files = [p for rel in listing.get("bathymetry", []) for p in existing(rel)]
+    tifs = sorted(glob.glob(os.path.join(ARCHIVE, "bathymetry", "*.tif")) +
+                  glob.glob(os.path.join(ARCHIVE, "bathymetry", "*.tiff")))
+    return files + tifs
+
+
+def get_profile_file(wildcards):
+    return existing(deployment_row(wildcards.deployment)["profile_file"])
+
+
+# --- job resources sized from the inputs (profiles/slurm sends them to sbatch) -------
+def sized_mb(base_mb, per_input_mb=0.0, cap_mb=64000):
+    """mem_mb for a rule: ``base_mb`` plus ``per_input_mb`` per MB of input, capped, and
+    doubled on each retry (``attempt``) so that a job killed for memory asks for more."""
+
+    def _mem(wildcards, input, attempt):
+        return int(min(cap_mb, base_mb + per_input_mb * input.size_mb) * 2 ** (attempt - 1))
+
+    return _mem
+
+
+def sized_min(base_min, per_input_gb_min=0.0, cap_min=24 * 60):
+    """runtime [min] for a rule: ``base_min`` plus ``per_input_gb_min`` per GB of input,
+    capped, and doubled on each retry."""
+
+    def _runtime(wildcards, input, attempt):
+        return int(min(cap_min, base_min + per_input_gb_min * input.size_mb / 1024)
+                   * 2 ** (attempt - 1))
+
+    return _runtime
+
+
+# --- classification of backscatter (rules classify, classification_agreement, radar) ---
+#: Settings of floeheat.classify.ClassifySettings (config section classify).
+CLASSIFY_SETTINGS = {k: v for k, v in config["classify"].items() if k != "scenes_per_job"}
+SCENE_COLUMNS = ["scene_id", "path", "time", "content", "band", "acquisition_id"]
+
+
+def scene_table():
+    """The scene table written by checkpoint index."""
+    return pd.read_csv(checkpoints.index.get().output.scenes, dtype=str,
+                       keep_default_na=False)
+
+
+def classify_batches():
+    """Batch name -> its backscatter acquisitions (index order, scenes_per_job each)."""
+    from floeheat.steps.classify import batches
+
+    return batches(scene_table(), config["classify"]["scenes_per_job"])
+
+
+def classified_store(key, batch_of):
+    return f"{RESULTS}/classified/{batch_of[key]}/{key}.zarr"
+
+
+def get_classify_rows(wildcards):
+    """The scene rows of one classification batch (passed as params)."""
+    from floeheat.steps.classify import acquisitions
+
+    acq = acquisitions(scene_table())
+    rows = acq[acq["acquisition"].isin(classify_batches()[wildcards.batch])]
+    return rows[SCENE_COLUMNS].to_dict(orient="records")
+
+
+def get_classify_files(wildcards):
+    return [p for row in get_classify_rows(wildcards) for p in existing(row["path"])]
+
+
+def get_classified_stores(wildcards):
+    """Matched backscatter scene_id -> classified store, for the scenes of one deployment
+    that no matched mask of the same time serves."""
+    from floeheat.steps.classify import acquisitions
+
+    path = checkpoints.match_scenes.get(deployment=wildcards.deployment).output.matches
+    matches = pd.read_csv(path, dtype=str, keep_default_na=False)
+    mask_times = set(matches.loc[matches["content"] == "mask", "time"])
+    wanted = matches[(matches["content"] == "backscatter") & ~matches["time"].isin(mask_times)]
+    acq = acquisitions(scene_table())
+    key_of = dict(zip(acq["scene_id"], acq["acquisition"]))
+    batch_of = {k: b for b, keys in classify_batches().items() for k in keys}
+    return {sid: classified_store(key_of[sid], batch_of)
+            for sid in sorted(set(wanted["scene_id"])) if sid in key_of}
+
+
+def get_classified_batches(wildcards):
+    return sorted({os.path.dirname(p) for p in get_classified_stores(wildcards).values()})
+
+
+def get_twin_stores(wildcards):
+    """Acquisition -> classified store, for acquisitions the archive also holds as masks."""
+    from floeheat.steps.classify import mask_twins
+
+    batch_of = {k: b for b, keys in classify_batches().items() for k in keys}
+    return {k: classified_store(k, batch_of) for k in sorted(mask_twins(scene_table()))}
+
+
+def get_twin_batches(wildcards):
+    return sorted({os.path.dirname(p) for p in get_twin_stores(wildcards).values()})
+
+
+def get_twin_masks(wildcards):
+    from floeheat.steps.classify import mask_twins
+
+    table = scene_table()
+    paths = dict(zip(table["scene_id"], table["path"]))
+    return [p for sid in sorted(set(mask_twins(table).values())) for p in existing(paths[sid])]

@@ -6,6 +6,14 @@ rule figures:
         budgets=all_stage_status("budget"),
         seasonal=f"{RESULTS}/tables/seasonal.csv",
         climatology=f"{RESULTS}/tables/climatology.csv",
+        attribution=f"{RESULTS}/tables/attribution.csv",
+        bulkflux=f"{RESULTS}/tables/bulkflux.csv",
+        bulkflux_windows=f"{RESULTS}/tables/bulkflux_windows.csv",
+        screen=f"{RESULTS}/tables/screen.csv",
+        screen_track=f"{RESULTS}/tables/screen_track.csv",
+    params:
+        distance_m=config["screen"]["distance_m"],
+        disagree_factor=config["bulkflux"]["disagree_factor"],
     output:
         figures=directory(f"{RESULTS}/figures"),
     log:

@@ -15,7 +15,9 @@ rule forcing_store:
         f"{RESULTS}/logs/forcing_store.log",
     threads: 2
     resources:
-        mem_mb=2000,
-        runtime=60,
+        # read and rechunked a block of grid cells at a time: memory grows slowly with
+        # the files, time with their size
+        mem_mb=sized_mb(2000, per_input_mb=0.5, cap_mb=32000),
+        runtime=sized_min(15, per_input_gb_min=20),
     script:
         "../scripts/forcing_store.py"

@@ -16,9 +16,13 @@ rule insitu:
         season=config["season"],
     log:
         f"{RESULTS}/logs/insitu/{{deployment}}.log",
+    # on a cluster, several deployments' insitu jobs share one submission
+    # (profiles/slurm: group-components)
+    group: "insitu"
     threads: 1
     resources:
-        mem_mb=1000,
-        runtime=20,
+        # profiles and string are held in memory (as float64): a few times their size
+        mem_mb=sized_mb(800, per_input_mb=6.0),
+        runtime=sized_min(10, per_input_gb_min=60),
     script:
         "../scripts/insitu.py"

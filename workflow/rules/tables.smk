@@ -5,11 +5,14 @@ rule tables:
     input:
         budgets=all_stage_status("budget"),
         rejected=f"{RESULTS}/index/rejected.csv",
+        screen_windows=f"{RESULTS}/tables/screen_windows.csv",
     output:
         seasonal=f"{RESULTS}/tables/seasonal.csv",
+        climatology_unsplit=f"{RESULTS}/tables/climatology_unsplit.csv",
         climatology=f"{RESULTS}/tables/climatology.csv",
         failures=f"{RESULTS}/tables/failures.csv",
         windows=f"{RESULTS}/tables/windows.csv",
+        attribution=f"{RESULTS}/tables/attribution.csv",
     params:
         climatology=config["climatology"],
     log:

@@ -23,6 +23,7 @@ from floeheat.io.gridded import read_shortwave_csv
 from floeheat.microwave import fraction_at_buoys, interpolate_daily
 from floeheat.openwater import radar_time_series
 from floeheat.shortwave import sample_at_tracks
+from floeheat.steps.ensemble import budget_ensemble, write_window_members
 from floeheat.steps.scenes import position_at, read_track
 from floeheat.steps.status import StageFailed, atomic_path, read_status, run_stage
 
@@ -88,7 +89,15 @@ def microwave_fraction_series(store: xr.Dataset, track: pd.DataFrame, start, end
         return None
     sub = store.isel(time=np.flatnonzero(keep))
     mid = _midpoints(sub["time_bnds"].values)
-    lat, lon, _, _ = position_at(track, mid, "EPSG:4326")
+    # A day that overlaps the track but whose midpoint lies beyond its first or last
+    # fix (a deployment starting or ending mid-day) is sampled at the track's end
+    # position: its value still describes the buoy's surroundings that day.
+    t_track = pd.to_datetime(track["time"]).values.astype("datetime64[ns]")
+    sb = sub["time_bnds"].values.astype("datetime64[ns]")
+    overlaps = (sb[:, 1] > t_track.min()) & (sb[:, 0] < t_track.max())
+    at = np.where(overlaps, np.clip(mid.astype("datetime64[ns]"), t_track.min(), t_track.max()),
+                  mid.astype("datetime64[ns]"))
+    lat, lon, _, _ = position_at(track, at, "EPSG:4326")
     ok = np.isfinite(lat)
     if not ok.any():
         return None
@@ -197,8 +206,16 @@ def _work(row: dict, insitu: dict, radar: dict | None, shortwave_store: str,
         "deployment_id": dep, "array_id": row.get("array_id") or "",
         "window_start": str(start), "window_end": str(end),
         "floeheat_version": __version__, "archive_format_version": ARCHIVE_FORMAT_VERSION,
-        "radar_input": "mask", "settings": json.dumps(provenance["settings"], sort_keys=True),
+        "radar_input": (radar or {}).get("radar_input", "none"),
+        "settings": json.dumps(provenance["settings"], sort_keys=True),
     })
+    ens = provenance.get("ensemble") or {}
+    ds, window_members = budget_ensemble(
+        ds, ens.get("settings") or {"members": 0}, deployment_id=dep,
+        radar_fractions_csv=(radar or {}).get("radar_fractions") or None,
+        radar_max_gap_days=radar_max_gap_days, coverage_threshold=ens.get("coverage_threshold"),
+        ice_settings=ens.get("ice"), ice=ice, sensor_spacing_m=insitu.get("sensor_spacing_m"),
+        threads=ens.get("threads", 1))
     store_path = out_dir / "budget.zarr"
     write_budget_store(ds, store_path)
 
@@ -217,19 +234,31 @@ def _work(row: dict, insitu: dict, radar: dict | None, shortwave_store: str,
     return {"budget_zarr": str(store_path), "seasonal": str(paths["seasonal"]),
             "windows": str(paths["windows"]), "track": insitu["track"],
             "radar_fractions": (radar or {}).get("radar_fractions", ""),
-            "sources": sorted(series)}
+            "floe_context": (radar or {}).get("floe_context", ""),
+            "sources": sorted(series),
+            **write_window_members(window_members, work_dir / "window_members.csv", dep)}
 
 
 def run_budget(row: dict, insitu_status: str, radar_status: str, shortwave_store: str,
                concentration_store: str, shortwave_csv: list[str], status_path: str, *,
                radar_max_gap_days: float, microwave: dict, budget: dict,
-               radar_radii_m: list[float]) -> dict:
-    """Run the stage for one deployment and write its status record."""
+               radar_radii_m: list[float], ensemble: dict | None = None,
+               ice: dict | None = None, coverage_threshold: float | None = None,
+               threads: int = 1) -> dict:
+    """Run the stage for one deployment and write its status record.
+
+    ``ensemble`` (config ``ensemble``), ``ice`` (config ``ice``, the central constants)
+    and ``coverage_threshold`` (config ``radar.coverage_threshold``) drive the
+    uncertainty ensemble (:func:`floeheat.steps.ensemble.budget_ensemble`); without
+    ``ensemble`` the budget has no ensemble.
+    """
     status = Path(status_path)
     out_dir = status.parent.parent
     work_dir = out_dir / "work"
     settings = {"radar_max_gap_days": radar_max_gap_days, "microwave": microwave,
                 "budget": budget, "radar_radii_m": list(radar_radii_m)}
+    if ensemble is not None:
+        settings["ensemble"] = ensemble
 
     def work() -> dict:
         insitu = read_status(insitu_status)
@@ -240,7 +269,9 @@ def run_budget(row: dict, insitu_status: str, radar_status: str, shortwave_store
             radar = None
         return _work(row, insitu, radar, shortwave_store, concentration_store, shortwave_csv,
                      out_dir, work_dir, radar_max_gap_days, microwave, budget,
-                     {"radar_radii_m": list(radar_radii_m), "settings": settings})
+                     {"radar_radii_m": list(radar_radii_m), "settings": settings,
+                      "ensemble": {"settings": ensemble, "ice": ice, "threads": threads,
+                                   "coverage_threshold": coverage_threshold}})
 
     return run_stage("budget", row["deployment_id"], status, work,
                      upstream=[Path(insitu_status)])

@@ -28,8 +28,27 @@ def _season_value(seasonal: pd.DataFrame, dep: str) -> tuple[float, str]:
     return float(pick["t_ice"]), f"{pick['source']} {pick['radius_m'] / 1000:g} km"
 
 
+def _attribution_rows(attribution_csv: str | None) -> tuple[pd.DataFrame, str]:
+    """One row per deployment: the radar source at the radius nearest the default (else
+    any source), as in the track map."""
+    if not attribution_csv or not Path(attribution_csv).is_file():
+        return pd.DataFrame(), ""
+    table = pd.read_csv(attribution_csv)
+    if table.empty:
+        return table, ""
+    picks, labels = [], set()
+    for _, rows in table.groupby("deployment_id", sort=True):
+        radar = rows[rows["source"] == "radar"]
+        pick = radar if not radar.empty else rows
+        pick = pick.iloc[(pick["radius_m"] - constants.RADIUS_DEFAULT_M).abs().argsort()]
+        picks.append(pick.iloc[0])
+        labels.add(f"{pick.iloc[0]['source']} {pick.iloc[0]['radius_m'] / 1000:g} km")
+    return pd.DataFrame(picks), ", ".join(sorted(labels))
+
+
 def run_figures(budget_status: list[str], seasonal_csv: str, climatology_csv: str,
-                out_dir: str) -> list[str]:
+                out_dir: str, attribution_csv: str | None = None,
+                checks: dict | None = None) -> list[str]:
     """Draw the per-deployment and basin figures into ``out_dir`` (replaced whole)."""
     seasonal = pd.read_csv(seasonal_csv)
     clim = pd.read_csv(climatology_csv)
@@ -46,11 +65,13 @@ def run_figures(budget_status: list[str], seasonal_csv: str, climatology_csv: st
             scene_times = pd.read_csv(record["radar_fractions"], parse_dates=["time"])["time"] \
                 if record.get("radar_fractions") else []
             dep_rows = seasonal[seasonal["deployment_id"] == dep]
-            for name, figure in (
-                ("budget", fig.budget_figure(ds, dep)),
-                ("openwater", fig.openwater_figure(ds, scene_times, dep)),
-                ("transmittance", fig.transmittance_figure(ds, dep_rows, dep)),
-            ):
+            figures = [("budget", fig.budget_figure(ds, dep)),
+                       ("openwater", fig.openwater_figure(ds, scene_times, dep)),
+                       ("transmittance", fig.transmittance_figure(ds, dep_rows, dep))]
+            if record.get("floe_context"):
+                figures.append(("floes", fig.floe_context_figure(
+                    pd.read_csv(record["floe_context"]), dep)))
+            for name, figure in figures:
                 target = tmp / "deployments" / dep / f"{name}.png"
                 target.parent.mkdir(parents=True, exist_ok=True)
                 fig.save_figure(figure, target)
@@ -69,5 +90,37 @@ def run_figures(budget_status: list[str], seasonal_csv: str, climatology_csv: st
             written.append("basin_tracks.png")
         fig.save_figure(fig.climatology_figure(clim), tmp / "basin_climatology.png")
         written.append("basin_climatology.png")
+        if attribution_csv:
+            rows, label = _attribution_rows(attribution_csv)
+            fig.save_figure(fig.attribution_figure(rows, label), tmp / "basin_attribution.png")
+            written.append("basin_attribution.png")
+        if checks:
+            written.extend(_check_figures(tmp, checks, clim))
     log.info("figures: %d written", len(written))
     return written
+
+
+def _check_figures(tmp: Path, checks: dict, clim: pd.DataFrame) -> list[str]:
+    """Bulk-flux cross-check, advection screen and ice-type split (``checks``: paths of
+    tables/bulkflux.csv, bulkflux_windows.csv, screen.csv, screen_track.csv and the
+    settings ``distance_m``, ``disagree_factor``)."""
+    out = []
+    whole = pd.read_csv(checks["bulkflux"])
+    windows = pd.read_csv(checks["bulkflux_windows"])
+    fig.save_figure(fig.bulkflux_figure(windows, whole, float(checks["disagree_factor"])),
+                    tmp / "basin_bulkflux.png")
+    out.append("basin_bulkflux.png")
+    fig.save_figure(fig.screen_figure(pd.read_csv(checks["screen_track"]),
+                                      pd.read_csv(checks["screen"]),
+                                      float(checks["distance_m"])),
+                    tmp / "basin_screen.png")
+    out.append("basin_screen.png")
+    if "ice_type" in clim.columns and len(clim):
+        radar = clim[clim["source"] == "radar"]
+        pick = radar if len(radar) else clim
+        radius = float(pick.iloc[(pick["radius_m"] - constants.RADIUS_DEFAULT_M).abs()
+                                 .argsort()].iloc[0]["radius_m"])
+        fig.save_figure(fig.ice_type_figure(clim, str(pick["source"].iloc[0]), radius),
+                        tmp / "basin_ice_type.png")
+        out.append("basin_ice_type.png")
+    return out

@@ -116,6 +116,10 @@ def _work(archive: Path, row: dict, work_dir: Path, track_cfg: dict, ice_cfg: di
         ice_path = work_dir / "ice.nc"
         write_netcdf(ice, ice_path)
         products["ice"] = str(ice_path)
+        # the string's sensor spacing sets the ice-bottom pick error of the ensemble
+        spacing = np.diff(np.sort(np.asarray(icemass["depth"].values, dtype=float)))
+        if np.isfinite(spacing).any():
+            products["sensor_spacing_m"] = float(np.nanmedian(spacing))
 
     if profiles is not None:
         in_window = (profiles["time"] >= np.datetime64(start)) & \

@@ -50,7 +50,9 @@ def output_checksums(results) -> dict[str, str]:
     the three tables, each budget.zarr store (as a tree) and every figure."""
     results_p = Path(results)
     outputs: dict[str, str] = {}
-    for rel in ("tables/seasonal.csv", "tables/climatology.csv", "tables/failures.csv"):
+    for rel in ("tables/seasonal.csv", "tables/climatology.csv", "tables/failures.csv",
+                "tables/attribution.csv", "tables/climatology_unsplit.csv",
+                "tables/screen.csv", "tables/screen_windows.csv", "tables/bulkflux.csv"):
         if (results_p / rel).is_file():
             outputs[rel] = sha256_file(results_p / rel)
     for store in sorted((results_p / "deployments").glob("*/budget.zarr")):

@@ -21,6 +21,7 @@ from floeheat.climatology import (
     polygon_region_names,
     read_regions_geojson,
 )
+from floeheat.steps.ensemble import read_window_members
 from floeheat.steps.status import atomic_path, read_status
 
 __all__ = ["SEASONAL_COLUMNS", "FAILURE_COLUMNS", "run_tables", "write_table"]
@@ -72,8 +73,14 @@ def _region_names(windows: pd.DataFrame, settings: dict) -> np.ndarray:
 
 def run_tables(budget_status: list[str], rejected_csv: str, seasonal_csv: str,
                climatology_csv: str, failures_csv: str, windows_csv: str,
-               climatology: dict) -> None:
-    """Collect per-deployment results into the run's tables."""
+               climatology: dict, screen_windows: str | None = None,
+               unsplit_csv: str | None = None) -> None:
+    """Collect per-deployment results into the run's tables.
+
+    ``screen_windows`` (tables/screen_windows.csv of stage screen): windows it marks
+    ``excluded`` are left out of the climatology (windows.csv keeps them all);
+    ``unsplit_csv``: the climatology without the ice-type split.
+    """
     seasonal_parts, window_parts, failures = [], [], []
     rejected = pd.read_csv(rejected_csv, dtype=str, keep_default_na=False)
     failures.extend(rejected[list(FAILURE_COLUMNS)].to_dict(orient="records"))
@@ -106,9 +113,24 @@ def run_tables(budget_status: list[str], rejected_csv: str, seasonal_csv: str,
                                   kind="stable")
     has_ice_type = windows["ice_type"].fillna("").astype(str).str.len().gt(0).any() \
         if not windows.empty else False
-    clim = climatology_table(windows, _region_names(windows, climatology),
+    from floeheat.steps.screen import annotate_climatology, apply_screen
+
+    kept, screened_out, screen_note = apply_screen(windows, screen_windows)
+    clim = climatology_table(kept, _region_names(kept, climatology),
                              n_boot=int(climatology["bootstrap_n"]),
-                             seed=int(climatology["seed"]), split_ice_type=bool(has_ice_type))
+                             seed=int(climatology["seed"]), split_ice_type=bool(has_ice_type),
+                             member_values=read_window_members(budget_status, kept))
+    clim = annotate_climatology(clim, screened_out, _region_names(screened_out, climatology),
+                                screen_note, bool(has_ice_type))
+    if unsplit_csv:
+        unsplit = climatology_table(kept, _region_names(kept, climatology),
+                                    n_boot=int(climatology["bootstrap_n"]),
+                                    seed=int(climatology["seed"]), split_ice_type=False,
+                                    member_values=read_window_members(budget_status, kept)) \
+            if has_ice_type else clim
+        write_table(annotate_climatology(
+            unsplit, screened_out, _region_names(screened_out, climatology), screen_note,
+            False) if has_ice_type else unsplit, Path(unsplit_csv))
     write_table(seasonal, Path(seasonal_csv))
     write_table(windows, Path(windows_csv))
     write_table(clim, Path(climatology_csv))

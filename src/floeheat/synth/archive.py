@@ -478,13 +478,17 @@ def _bs_var(name, data):
     return (name, data, attrs, {"dtype": "f4", "fill_value": np.float32(np.nan)})
 
 
-def _write_one_scene(root: Path, sc: Scenario, field_, p) -> tuple[list, dict]:
+def _write_one_scene(root: Path, sc: Scenario, field_, p, content: str = "mask"
+                     ) -> tuple[list, dict]:
     rows = []
     bs_truth = {}
     mask = icefield.render_mask(field_, p)
+    kind = p.backscatter
     tags = {"time_coverage_start": iso(p.time), "content": "mask", "scene_id": p.scene_id,
             "mask_codes": "0 open water, 1 ice, 255 no data"}
-    if p.fmt == "nc":
+    if content == "backscatter":          # the acquisition only as backscatter
+        kind = kind or ("nc" if p.fmt == "nc" else "tif")
+    elif p.fmt == "nc":
         rel = f"scenes/masks/{p.scene_id}.nc"
         _scene_nc(root / rel, sc, p, [(
             "ice_water_mask", mask,
@@ -495,14 +499,15 @@ def _write_one_scene(root: Path, sc: Scenario, field_, p) -> tuple[list, dict]:
         rel = f"scenes/masks/{p.scene_id}.tif"
         write_geotiff(root / rel, [mask], sc.crs, p.x0_m, p.y0_m, p.res_m,
                       ["ice_water_mask"], tags, nodata=255)
-    rows.append([p.scene_id, rel, iso(p.time), "mask", "", ""])
-    if not p.backscatter:
+    if content != "backscatter":
+        rows.append([p.scene_id, rel, iso(p.time), "mask", "", ""])
+    if not kind:
         return rows, bs_truth
     rng = rng_for(sc.seed, "backscatter", sc.hemisphere, p.scene_id)
     bands = icefield.backscatter_from_mask(rng, field_, p, mask)
     btags = {**tags, "content": "backscatter"}
     btags.pop("mask_codes")
-    if p.backscatter == "split":
+    if kind == "split":
         acq = f"{p.scene_id}-acq"
         for pol in ("HH", "HV"):
             sid = f"{p.scene_id}-{pol.lower()}"
@@ -515,7 +520,7 @@ def _write_one_scene(root: Path, sc: Scenario, field_, p) -> tuple[list, dict]:
             bs_truth[sid] = p.scene_id
         return rows, bs_truth
     sid = f"{p.scene_id}-bs"
-    if p.backscatter == "nc":
+    if kind == "nc":
         rel = f"scenes/backscatter/{sid}.nc"
         _scene_nc(root / rel, sc, p, [_bs_var(n, bands[n]) for n in _BS_BANDS], "backscatter")
     else:
@@ -528,10 +533,11 @@ def _write_one_scene(root: Path, sc: Scenario, field_, p) -> tuple[list, dict]:
     return rows, bs_truth
 
 
-def _write_scenes(root: Path, sc: Scenario, field_, plans) -> tuple[list, dict]:
+def _write_scenes(root: Path, sc: Scenario, field_, plans, content: str = "mask"
+                  ) -> tuple[list, dict]:
     """Write every scene (each with its own generator: bytes independent of workers)."""
     rows, bs_truth = [], {}
-    for r, b in _parallel_map(lambda p: _write_one_scene(root, sc, field_, p), plans):
+    for r, b in _parallel_map(lambda p: _write_one_scene(root, sc, field_, p, content), plans):
         rows.extend(r)
         bs_truth.update(b)
     return rows, bs_truth
@@ -639,7 +645,8 @@ def _write_truth_nc(path: Path, sc, dep, oi, fow, nodes, truth):
 # --------------------------------------------------------------------------- main
 
 def write_archive(outdir: Path, seed: int = 1, size: str | SizeSpec = "demo",
-                  hemisphere: str = "north") -> Path:
+                  hemisphere: str = "north", variant: str = "none",
+                  scene_content: str = "mask") -> Path:
     """Write a synthetic archive (format version 1) and its truth; return the truth folder.
 
     Parameters
@@ -653,6 +660,17 @@ def write_archive(outdir: Path, seed: int = 1, size: str | SizeSpec = "demo",
         A name from :data:`floeheat.synth.SIZES` or a custom :class:`SizeSpec`.
     hemisphere : {"north", "south"}
         Which invented scenario.
+    variant : {"none", "shelf"}
+        ``shelf``: the arrays start at least 300 km apart and a shallow bank (sea floor
+        rising to 150 m) is centred where the last deployment's record ends, so that its
+        track drifts onto the shelf while the other array stays over deep water; the
+        truth records the bank (``shelf``). ``none`` writes the plain scenario.
+    scene_content : {"mask", "backscatter"}
+        ``mask``: every acquisition as an ice/water mask, a few also as calibrated
+        backscatter (``SizeSpec.backscatter_count``). ``backscatter``: every acquisition
+        only as backscatter (same grids, times and random draws; the masks are not
+        written, ``backscatter_mask_scene`` still names the acquisition), for runs of
+        the classification stage on a whole archive.
 
     Returns
     -------
@@ -661,6 +679,14 @@ def write_archive(outdir: Path, seed: int = 1, size: str | SizeSpec = "demo",
     """
     outdir = Path(outdir)
     spec = resolve_size(size)
+    if variant not in ("none", "shelf"):
+        raise ValueError(f"variant must be 'none' or 'shelf', not {variant!r}")
+    if scene_content not in ("mask", "backscatter"):
+        raise ValueError(f"scene_content must be 'mask' or 'backscatter', not {scene_content!r}")
+    if variant == "shelf":
+        from dataclasses import replace
+
+        spec = replace(spec, array_spacing_m=max(spec.array_spacing_m, 300_000.0))
     sc = make_scenario(int(seed), spec, hemisphere)
     truth_dir = truth_dir_for(outdir)
     for d, marker in ((outdir, "deployments.csv"), (truth_dir, "truth.json")):
@@ -721,8 +747,18 @@ def write_archive(outdir: Path, seed: int = 1, size: str | SizeSpec = "demo",
 
     sw_files = _write_shortwave(outdir, sc, grid)
     pm = gridded.make_microwave(sc, field_, tracks.x_m, tracks.y_m)
+    shelf = None
+    if variant == "shelf":
+        centre = (float(tracks.x_m[-1, -1]), float(tracks.y_m[-1, -1]))
+        pm = gridded.with_shelf(pm, centre)
+        shelf = {"deployment_id": sc.deployments[-1].deployment_id, "crs": sc.crs,
+                 "centre_x_m": centre[0], "centre_y_m": centre[1],
+                 "shelf_depth_m": gridded.SHELF_DEPTH_M,
+                 "isobath_1000m_radius_m": gridded.shelf_isobath_radius_m(1000.0),
+                 "distance_rule": "ground distance to the 1000 m isobath = (projected distance"
+                                  " to the centre - isobath radius) / local scale factor"}
     pm_files = _write_concentration(outdir, sc, pm)
-    scene_rows, bs_truth = _write_scenes(outdir, sc, field_, plans)
+    scene_rows, bs_truth = _write_scenes(outdir, sc, field_, plans, scene_content)
     write_csv(outdir / "deployments.csv", ["deployment_id", "array_id", "profile_file",
                                            "icemass_file", "shortwave_file", "start", "end",
                                            "ice_type"], dep_rows)
@@ -765,5 +801,10 @@ def write_archive(outdir: Path, seed: int = 1, size: str | SizeSpec = "demo",
                   "bathymetry": "bathymetry/sea_floor_depth.nc"},
         "deployments": truth_deps,
     }
+    if scene_content != "mask":
+        meta["scenario"]["scene_content"] = scene_content
+    if shelf is not None:
+        meta["scenario"]["variant"] = variant
+        meta["shelf"] = shelf
     (truth_dir / "truth.json").write_text(json.dumps(meta, indent=2, sort_keys=False) + "\n")
     return truth_dir

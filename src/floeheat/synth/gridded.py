@@ -151,3 +151,36 @@ def make_microwave(sc: Scenario, field_: IceField, x_track, y_track) -> PMGrid:
     depth = 3600.0 + 400.0 * np.cos(r / 300_000.0) + 50.0 * np.sin(X / 97_000.0)
     depth = np.where(land, np.nan, np.round(depth, 1))
     return PMGrid(day_start=day_start, x=x, y=y, conc=conc, land=land, depth_m=depth)
+
+
+#: Shelf variant: depth on the bank, its radius, and the width of the slope down to the
+#: deep basin (metres). Scenario parameters.
+SHELF_DEPTH_M = 150.0
+SHELF_RADIUS_M = 20_000.0
+SHELF_SLOPE_WIDTH_M = 80_000.0
+#: Depth the slope would reach at its foot, metres (the basin below is clipped to it).
+SHELF_SLOPE_FOOT_M = 3600.0
+
+
+def shelf_isobath_radius_m(isobath_m: float) -> float:
+    """Distance from the bank's centre at which the slope crosses an isobath, metres.
+
+    Examples
+    --------
+    >>> round(shelf_isobath_radius_m(1000.0))
+    39710
+    """
+    frac = (isobath_m - SHELF_DEPTH_M) / (SHELF_SLOPE_FOOT_M - SHELF_DEPTH_M)
+    return SHELF_RADIUS_M + SHELF_SLOPE_WIDTH_M * frac
+
+
+def with_shelf(pm: PMGrid, centre_xy: tuple[float, float]) -> PMGrid:
+    """The grid with a shallow bank (shelf variant): depth rising linearly from the basin
+    to ``SHELF_DEPTH_M`` over ``SHELF_SLOPE_WIDTH_M``, flat within ``SHELF_RADIUS_M``."""
+    X, Y = np.meshgrid(pm.x, pm.y)
+    r = np.hypot(X - centre_xy[0], Y - centre_xy[1])
+    slope = SHELF_DEPTH_M + np.clip(r - SHELF_RADIUS_M, 0, None) / SHELF_SLOPE_WIDTH_M * (
+        SHELF_SLOPE_FOOT_M - SHELF_DEPTH_M)
+    depth = np.where(np.isnan(pm.depth_m), np.nan, np.round(np.minimum(pm.depth_m, slope), 1))
+    return PMGrid(day_start=pm.day_start, x=pm.x, y=pm.y, conc=pm.conc, land=pm.land,
+                  depth_m=depth)

@@ -955,11 +955,10 @@ def ice_base(
                         tf["time"].values.astype("int64"), tf.values)
               if tf.sizes["time"] else None)
     top_raw = find_top_surface(temp, depth, heated_rise=rise)
-    raw = find_ice_bottom(temp, depth, span_m=fit_span_m, heated_rise=rise,
-                          top_m=smooth_in_time(top_raw, smooth_hours).values,
-                          freezing_temperature_degC=tf)
-    zb_th = smooth_in_time(raw.z_b, smooth_hours)
     z_top = smooth_in_time(top_raw, smooth_hours)
+    raw = find_ice_bottom(temp, depth, span_m=fit_span_m, heated_rise=rise,
+                          top_m=z_top.values, freezing_temperature_degC=tf)
+    zb_th = smooth_in_time(raw.z_b, smooth_hours)
     zb = zb_th
     src = raw.source.copy()
     attrs = {}

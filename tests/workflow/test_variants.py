@@ -25,22 +25,23 @@ def _truth(archive):
     return json.loads((archive.parent / f"{archive.name}.truth" / "truth.json").read_text())
 
 
-@pytest.fixture(scope="module")
-def shelf_run(tmp_path_factory, run_workflow):
-    root = tmp_path_factory.mktemp("shelf") / "archive"
-    write_archive(root, seed=1, size="tiny", variant="shelf")
+def _variant_run(tmp_path_factory, run_workflow, name, **variant):
+    """(archive, results) of the workflow on a tiny archive of one synthesizer variant."""
+    root = tmp_path_factory.mktemp(name) / "archive"
+    write_archive(root, seed=1, size="tiny", **variant)
     results = root.parent / "results"
     run_workflow("--config", f"archive={root}", f"results={results}")
     return root, results
+
+
+@pytest.fixture(scope="module")
+def shelf_run(tmp_path_factory, run_workflow):
+    return _variant_run(tmp_path_factory, run_workflow, "shelf", variant="shelf")
 
 
 @pytest.fixture(scope="module")
 def south_run(tmp_path_factory, run_workflow):
-    root = tmp_path_factory.mktemp("south") / "archive"
-    write_archive(root, seed=1, size="tiny", hemisphere="south")
-    results = root.parent / "results"
-    run_workflow("--config", f"archive={root}", f"results={results}")
-    return root, results
+    return _variant_run(tmp_path_factory, run_workflow, "south", hemisphere="south")
 
 
 def _true_distance(archive, truth, dep):

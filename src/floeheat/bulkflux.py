@@ -26,6 +26,7 @@ __all__ = [
     "ice_velocity",
     "friction_velocity",
     "thermal_forcing",
+    "shallowest_samples",
     "bulk_comparison",
 ]
 
@@ -142,6 +143,51 @@ def thermal_forcing(temperature_degC, practical_salinity, pressure_dbar, latitud
                         np.asarray(latitude_deg, dtype=float))
     t_f = gsw.t_freezing(sa, 0.0, saturation_fraction)
     return np.asarray(temperature_degC, dtype=float) - t_f
+
+
+def shallowest_samples(profiles) -> pd.DataFrame:
+    """Each profile's shallowest complete sample, in time order.
+
+    Parameters
+    ----------
+    profiles : xarray.Dataset
+        Profiles as read by :func:`floeheat.io.profiles.read_profiles`: ``temperature``
+        [degC], ``salinity`` [1], ``pressure`` [dbar] on (profile, level), shallowest
+        level first, and ``time``, ``latitude``, ``longitude`` per profile.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Columns ``time``, ``temperature_degC``, ``salinity``, ``pressure_dbar``,
+        ``latitude_deg``, ``longitude_deg``; profiles without a complete sample are
+        left out.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> ds = xr.Dataset({"temperature": (("profile", "level"), [[np.nan, -1.2], [-1.5, -1.6]]),
+    ...                  "salinity": (("profile", "level"), [[30.0, 31.0], [30.5, 31.5]]),
+    ...                  "pressure": (("profile", "level"), [[5.0, 10.0], [5.0, 10.0]]),
+    ...                  "time": ("profile", np.array(["2020-07-02", "2020-07-01"],
+    ...                                               "datetime64[ns]")),
+    ...                  "latitude": ("profile", [80.0, 80.1]),
+    ...                  "longitude": ("profile", [10.0, 10.1])})
+    >>> shallowest_samples(ds)[["temperature_degC", "pressure_dbar"]].values.tolist()
+    [[-1.5, 5.0], [-1.2, 10.0]]
+    """
+    t = np.asarray(profiles["temperature"].values, dtype=float)
+    s = np.asarray(profiles["salinity"].values, dtype=float)
+    p = np.asarray(profiles["pressure"].values, dtype=float)
+    ok = np.isfinite(t) & np.isfinite(s) & np.isfinite(p)
+    has = ok.any(axis=1)
+    first = np.argmax(ok, axis=1)
+    k = np.arange(t.shape[0])
+    return pd.DataFrame({
+        "time": profiles["time"].values[has], "temperature_degC": t[k, first][has],
+        "salinity": s[k, first][has], "pressure_dbar": p[k, first][has],
+        "latitude_deg": profiles["latitude"].values[has],
+        "longitude_deg": profiles["longitude"].values[has],
+    }).sort_values("time", kind="stable").reset_index(drop=True)
 
 
 def _mean(x):

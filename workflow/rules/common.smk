@@ -88,7 +88,7 @@ def all_stage_status(stage):
     return _inputs
 
 
-# --- where a 1-D budget holds (rules screen, bulkflux) ----------------------------
+# --- where a 1-D budget holds (rules tables, bulkflux) ----------------------------
 #: Settings of rule bulkflux: its own section plus the budget's window length and the
 #: freezing point's air saturation, so that its windows match the budget's.
 BULKFLUX_SETTINGS = {
@@ -112,8 +112,10 @@ def get_bathymetry_files(wildcards):
     return files + tifs
 
 
-def get_profile_file(wildcards):
-    return existing(deployment_row(wildcards.deployment)["profile_file"])
+def get_array_ids(wildcards):
+    """deployment_id -> array_id of every deployment (passed as params)."""
+    table = index_table()
+    return dict(zip(table["deployment_id"], table["array_id"]))
 
 
 # --- job resources sized from the inputs (profiles/slurm sends them to sbatch) -------

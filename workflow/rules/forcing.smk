@@ -13,7 +13,11 @@ rule forcing_store:
         listing=f"{RESULTS}/index/forcing.json",
     log:
         f"{RESULTS}/logs/forcing_store.log",
-    threads: 2
+    # every budget job waits for it, and it needs only the index: start it first, on one
+    # core beside the instrument jobs (dask workers = threads; for a large grid raise
+    # them with --set-threads forcing_store=N)
+    priority: 10
+    threads: 1
     resources:
         # read and rechunked a block of grid cells at a time: memory grows slowly with
         # the files, time with their size

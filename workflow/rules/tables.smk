@@ -1,12 +1,17 @@
-# Basin-wide tables and the run record.
+# Basin-wide tables and the run record. Rule tables first screens the budget windows
+# for where a 1-D budget may not hold (advection, drift, shear, residual outliers), then
+# builds the seasonal and climatology tables without the excluded windows.
 
 
 rule tables:
     input:
         budgets=all_stage_status("budget"),
         rejected=f"{RESULTS}/index/rejected.csv",
-        screen_windows=f"{RESULTS}/tables/screen_windows.csv",
+        bathymetry=get_bathymetry_files,
     output:
+        screen=f"{RESULTS}/tables/screen.csv",
+        screen_windows=f"{RESULTS}/tables/screen_windows.csv",
+        screen_track=f"{RESULTS}/tables/screen_track.csv",
         seasonal=f"{RESULTS}/tables/seasonal.csv",
         climatology_unsplit=f"{RESULTS}/tables/climatology_unsplit.csv",
         climatology=f"{RESULTS}/tables/climatology.csv",
@@ -15,11 +20,12 @@ rule tables:
         attribution=f"{RESULTS}/tables/attribution.csv",
     params:
         climatology=config["climatology"],
+        screen=config["screen"],
     log:
         f"{RESULTS}/logs/tables.log",
     threads: 1
     resources:
-        mem_mb=1000,
+        mem_mb=1500,
         runtime=20,
     script:
         "../scripts/tables.py"

@@ -1,13 +1,17 @@
-"""Adapter of rule tables: seasonal, climatology and failures tables."""
+"""Adapter of rule tables: the window screen, then the seasonal, climatology, failures
+and attribution tables."""
 from floeheat.steps.ensemble import write_attribution
+from floeheat.steps.screen import run_screen
 from floeheat.steps.status import setup_logging
 from floeheat.steps.tables import run_tables
 
 sm = snakemake  # noqa: F821 (injected by Snakemake)
 setup_logging(sm.log[0])
+run_screen(list(sm.input.budgets), list(sm.input.bathymetry), sm.output.screen,
+           sm.output.screen_windows, sm.output.screen_track, settings=dict(sm.params.screen))
 run_tables(list(sm.input.budgets), sm.input.rejected, sm.output.seasonal,
            sm.output.climatology, sm.output.failures, sm.output.windows,
            climatology=dict(sm.params.climatology),
-           screen_windows=sm.input.screen_windows,
+           screen_windows=sm.output.screen_windows,
            unsplit_csv=sm.output.climatology_unsplit)
 write_attribution(list(sm.input.budgets), sm.output.attribution)

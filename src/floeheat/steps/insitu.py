@@ -18,6 +18,7 @@ import xarray as xr
 from floeheat import icebase
 from floeheat import track as trk
 from floeheat.budget import analysis_window
+from floeheat.bulkflux import shallowest_samples
 from floeheat.errors import ArchiveError
 from floeheat.io.icemass import read_icemass
 from floeheat.io.profiles import read_profiles
@@ -122,6 +123,12 @@ def _work(archive: Path, row: dict, work_dir: Path, track_cfg: dict, ice_cfg: di
             products["sensor_spacing_m"] = float(np.nanmedian(spacing))
 
     if profiles is not None:
+        # the profiler's shallowest samples, for the bulk-flux cross-check (rule bulkflux)
+        surface_path = work_dir / "surface.csv"
+        with atomic_path(surface_path) as tmp:
+            shallowest_samples(profiles).to_csv(tmp, index=False, float_format="%.10g",
+                                                date_format="%Y-%m-%dT%H:%M:%S")
+        products["surface"] = str(surface_path)
         in_window = (profiles["time"] >= np.datetime64(start)) & \
             (profiles["time"] <= np.datetime64(end))
         window_profiles = profiles.isel(profile=np.flatnonzero(in_window.values))

@@ -24,7 +24,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from floeheat import floes, openwater
+from floeheat import openwater
 from floeheat import track as trk
 from floeheat.errors import ArchiveError
 from floeheat.io.scenes import open_scene
@@ -171,6 +171,8 @@ def _inputs(archive: Path, matched: list[dict], classified: dict, mask_codes: di
 def _fractions(archive: Path, track: pd.DataFrame, matched: list[dict], radii_m: list[float],
                coverage_threshold: float, mask_codes: dict, classified: dict | None = None,
                floe_radius_m: float | None = None) -> tuple[pd.DataFrame, pd.DataFrame]:
+    from floeheat import floes  # scipy.ndimage: only the radar stage pays its import
+
     radii = np.asarray(sorted(radii_m), dtype=float)
     floe_r = float(min(floe_radius_m or radii[-1], radii[-1]))
     rows, floe_rows = [], []

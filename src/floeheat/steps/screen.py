@@ -1,4 +1,5 @@
-"""Stage ``screen`` (run-wide): where the one-dimensional budget holds.
+"""The window screen (run-wide, the first step of rule tables): where the one-dimensional
+budget holds.
 
 Reads every deployment's track and window records (from the budget records) and the
 archive's bathymetry grid when there is one, flags each window (:mod:`floeheat.screen`)

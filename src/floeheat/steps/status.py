@@ -17,14 +17,17 @@ import traceback
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
+from typing import TypeVar
 
 from floeheat.checksums import sha256_tree
 from floeheat.errors import ArchiveError
 
-__all__ = ["atomic_path", "write_json_atomic", "read_status", "run_stage", "StageFailed",
-           "setup_logging"]
+__all__ = ["atomic_path", "write_json_atomic", "read_status", "run_stage", "attempt",
+           "StageFailed", "setup_logging"]
 
 log = logging.getLogger("floeheat")
+
+T = TypeVar("T")
 
 
 class StageFailed(RuntimeError):
@@ -89,6 +92,21 @@ def setup_logging(log_path: str | os.PathLike | None) -> None:
     logging.getLogger("pint").setLevel(logging.ERROR)
 
 
+def attempt(stage: str, deployment_id: str, work: Callable[[], T]) -> tuple[T | None, str]:
+    """Run one deployment's ``work``; ``(products, "")`` or, when it fails, ``(None,
+    message)``. A bad input (ArchiveError, StageFailed) gives its own message; any other
+    failure is logged with its traceback and never stops the other deployments."""
+    try:
+        return work(), ""
+    except (ArchiveError, StageFailed) as exc:
+        log.error("%s failed for %s: %s", stage, deployment_id, exc)
+        return None, str(exc)
+    except Exception as exc:  # an unforeseen failure must not stop other deployments
+        log.error("%s failed for %s:\n%s", stage, deployment_id, traceback.format_exc())
+        return None, (f"unexpected error ({type(exc).__name__}: {exc}); "
+                      "see the stage log for details")
+
+
 def run_stage(stage: str, deployment_id: str, status_path: Path,
               work: Callable[[], dict], upstream: list[Path] | None = None) -> dict:
     """Run one deployment's stage and write its status record.
@@ -121,16 +139,9 @@ def run_stage(stage: str, deployment_id: str, status_path: Path,
             write_json_atomic(status_path, record)
             log.info("%s: skipped, upstream stage %s failed", stage, record["failed_stage"])
             return record
-    try:
-        products = work()
-    except (ArchiveError, StageFailed) as exc:
-        record.update(ok=False, failed_stage=stage, message=str(exc))
-        log.error("%s failed for %s: %s", stage, deployment_id, exc)
-    except Exception as exc:  # an unforeseen failure must not stop other deployments
-        record.update(ok=False, failed_stage=stage,
-                      message=f"unexpected error ({type(exc).__name__}: {exc}); "
-                      "see the stage log for details")
-        log.error("%s failed for %s:\n%s", stage, deployment_id, traceback.format_exc())
+    products, message = attempt(stage, deployment_id, work)
+    if products is None:
+        record.update(ok=False, failed_stage=stage, message=message)
     else:
         record.update(ok=True, **products)
         # The products' checksums make the record change exactly when a product does,

@@ -80,7 +80,7 @@ def _whole_scene_fractions(archive: Path, track: pd.DataFrame, scenes: pd.DataFr
             cov = n_v / n_c if n_c else np.nan
             ok = n_v > 0 and cov >= threshold
             rows.append((sc_row.scene_id, sc_row.time, float(r),
-                         n_w / n_v if ok else np.nan, cov, n_w, n_v, n_c, ok))
+                         n_w / n_v if ok else np.nan, cov, n_w, n_v, n_c, ok, "mask"))
     return pd.DataFrame(rows, columns=list(FRACTION_COLUMNS))
 
 

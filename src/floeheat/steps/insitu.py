@@ -126,8 +126,8 @@ def _work(archive: Path, row: dict, work_dir: Path, track_cfg: dict, ice_cfg: di
         # the profiler's shallowest samples, for the bulk-flux cross-check (rule bulkflux)
         surface_path = work_dir / "surface.csv"
         with atomic_path(surface_path) as tmp:
-            shallowest_samples(profiles).to_csv(tmp, index=False, float_format="%.10g",
-                                                date_format="%Y-%m-%dT%H:%M:%S")
+            # full precision (the bulk-flux table must not depend on this hop)
+            shallowest_samples(profiles).to_csv(tmp, index=False)
         products["surface"] = str(surface_path)
         in_window = (profiles["time"] >= np.datetime64(start)) & \
             (profiles["time"] <= np.datetime64(end))

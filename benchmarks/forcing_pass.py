@@ -5,7 +5,9 @@ forcing stores the workflow builds (``floeheat.steps.forcing.write_store``: poin
 chunks), opens them lazily as the budget stage does, and times sampling 1 and 50 drifting
 tracks in one call each (``floeheat.shortwave.sample_at_tracks`` and
 ``floeheat.microwave.fraction_at_buoys``, which take every track at once). For contrast
-it also times the way the workflow calls them today, one track per budget job.
+it also times the way the workflow calls them today, one track per budget job, and it
+counts the store chunks each call loads (a dask callback on the stores' block tasks)
+against the shortwave chunks that hold the tracks' grid corners.
 """
 
 from __future__ import annotations
@@ -14,6 +16,7 @@ import time
 
 import numpy as np
 import xarray as xr
+from dask.callbacks import Callback
 
 from benchmarks._common import Result, fresh, say
 
@@ -98,21 +101,43 @@ def _sample(paths, t_sw, t_ci, lat_h, lon_h, lat_d, lon_d):
     return a, b
 
 
-def _chunks_read(lat, lon, dlat: float, dlon: float) -> tuple[int, int]:
+def _corner_chunks(lat, lon, dlat: float, dlon: float) -> int:
     """Spatial chunks of the shortwave store that the bilinear corners of the tracks
-    lie in, and chunks of the rows x cols block that sample_at_tracks reads."""
+    lie in (the least a bilinear sampler must read)."""
     from floeheat.steps.forcing import SPATIAL_CHUNK as CH
 
-    i = np.floor((lat - 60.0) / dlat).astype(int)
-    j = np.floor(np.mod(lon, 360.0) / dlon).astype(int)
-    ii = np.concatenate([i.ravel(), i.ravel() + 1]) // CH
-    jj = np.concatenate([j.ravel(), j.ravel() + 1]) // CH
+    i = np.floor((lat - 60.0) / dlat).astype(int).ravel()
+    j = np.floor(np.mod(lon, 360.0) / dlon).astype(int).ravel()
+    n_cols = int(round(360.0 / dlon))
     pairs = set()
-    for a in (i.ravel() // CH, (i.ravel() + 1) // CH):
-        for b in (j.ravel() // CH, (j.ravel() + 1) // CH):
+    for a in (i // CH, (i + 1) // CH):
+        for b in (j // CH, ((j + 1) % n_cols) // CH):
             pairs |= set(zip(a.tolist(), b.tolist(), strict=True))
-    needed = len(pairs)
-    return needed, np.unique(ii).size * np.unique(jj).size
+    return len(pairs)
+
+
+class _ChunkCounter(Callback):
+    """Counts the store blocks dask loads: tasks keyed ``(open_dataset-<var>-<token>,
+    i, j, k)``, by variable, each distinct block once."""
+
+    def __init__(self):
+        super().__init__()
+        self.blocks: dict[str, set] = {}
+
+    def _pretask(self, key, dsk, state):
+        if isinstance(key, tuple) and str(key[0]).startswith("open_dataset-"):
+            var = str(key[0]).split("-")[1]
+            self.blocks.setdefault(var, set()).add(key)
+
+    def count(self, var: str) -> int:
+        return len(self.blocks.get(var, ()))
+
+
+def _chunks_loaded(sample) -> tuple[int, int]:
+    """(shortwave, concentration) store chunks one call of ``sample`` loads."""
+    with _ChunkCounter() as counter:
+        sample()
+    return counter.count("sw_down"), counter.count("sea_ice_area_fraction")
 
 
 def _split(parts):
@@ -149,6 +174,7 @@ def run(scratch, scale: str) -> Result:
             times[key].append(time.perf_counter() - t0)
             parts[key].append(_PARTS[-1])
     t_one, t_all = np.median(times["one"]), np.median(times["all"])
+    loaded = {"one": _chunks_loaded(one_track), "all": _chunks_loaded(all_tracks)}
     t0 = time.perf_counter()
     separate = track_by_track()
     t_sep = time.perf_counter() - t0
@@ -163,10 +189,11 @@ def run(scratch, scale: str) -> Result:
              f"{n_many} tracks one call each (as {n_many} budget jobs do) {t_sep:.2f} s = "
              f"{t_sep / t_one:.1f}x one track",
              f"one-pass values equal the per-track values: {same}",
-             "shortwave spatial chunks holding the tracks' grid corners / chunks of the "
-             "rows x cols block read: 1 track {} / {}, {} tracks {} / {}".format(
-                 *_chunks_read(lat_h[:1], lon_h[:1], *_spacing(scale)), n_many,
-                 *_chunks_read(lat_h, lon_h, *_spacing(scale)))]
+             "store chunks loaded per call: shortwave (of them holding the tracks' grid "
+             "corners) / concentration: 1 track {} ({}) / {}, {} tracks {} ({}) / {}".format(
+                 loaded["one"][0], _corner_chunks(lat_h[:1], lon_h[:1], *_spacing(scale)),
+                 loaded["one"][1], n_many, loaded["all"][0],
+                 _corner_chunks(lat_h, lon_h, *_spacing(scale)), loaded["all"][1])]
     return Result(2, "One pass over gridded forcing (50 tracks / 1 track)", t_all / t_one,
                   2.0, f"{size}; {n_many} tracks spread over the basin", notes)
 

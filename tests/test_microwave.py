@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dask.array
 import numpy as np
 import pandas as pd
 import pytest
@@ -129,6 +130,69 @@ def test_latlon_grid_equals_projected_grid_and_tracks_vectorised():
     assert (a.time.values == ds.time.values + np.timedelta64(12, "h")).all()
     with pytest.raises(ValueError):
         M.fraction_at_buoys(curv, lat, lon, radii, method="bilinear")
+
+
+class _ChunkRecorder:
+    """An array for dask.array.from_array that records the (start, stop) of every
+    non-empty block it serves."""
+
+    def __init__(self, values):
+        self.values = np.asarray(values)
+        self.shape, self.dtype, self.ndim = self.values.shape, self.values.dtype, self.values.ndim
+        self.blocks = []
+
+    def __getitem__(self, key):
+        out = self.values[key]
+        if out.size:
+            self.blocks.append(tuple((k.start, k.stop) for k in key))
+        return out
+
+
+@pytest.mark.parametrize("method", ["mean", "nearest", "bilinear"])
+def test_chunked_store_one_pass_reads_only_chunks_within_reach(method):
+    # Synthetic equivalence: a dask-chunked store gives the in-memory values exactly,
+    # and per track the values of the one-pass call. Chunks read: each at most once,
+    # every chunk holding a cell within 45 km of a buoy and none without a cell within
+    # 52 km (the search distance is nearest_max_m = 50 km times the local scale factor,
+    # 0.97-1.0 here; brute-force distances on the grid).
+    rng = np.random.default_rng(5)
+    x = -1500e3 + np.arange(64) * 25e3
+    y = 100e3 + np.arange(64) * 25e3
+    c = rng.uniform(0.0, 1.0, (4, y.size, x.size))
+    c[rng.uniform(size=c.shape) < 0.2] = np.nan
+    ds = _conc(c, x, y)
+    rec = _ChunkRecorder(c)
+    chunked = ds.copy()
+    chunked["sea_ice_area_fraction"] = (("time", "y", "x"),
+                                        dask.array.from_array(rec, chunks=(4, 16, 16)),
+                                        {"crs_wkt": WKT_3413})
+    days = np.arange(4)
+    px = np.array([[-1400e3], [-700e3], [-150e3]]) + 3e3 * days
+    py = np.array([[210e3], [905e3], [1560e3]]) + 2e3 * days
+    lat, lon = _ll(px, py)
+    radii = [15_000.0, 40_000.0]
+    together = M.fraction_at_buoys(chunked, lat, lon, radii, method=method)
+    read = list(rec.blocks)
+    ref = M.fraction_at_buoys(ds, lat, lon, radii, method=method)
+    np.testing.assert_array_equal(together.values, ref.values)
+    np.testing.assert_array_equal(together.n_cells.values, ref.n_cells.values)
+    for t in range(3):
+        alone = M.fraction_at_buoys(chunked, lat[t], lon[t], radii, method=method)
+        np.testing.assert_array_equal(alone.values, together.values[t])
+    got = [(rows[0] // 16, cols[0] // 16) for _, rows, cols in read]
+    assert len(got) == len(set(got))  # no chunk read twice
+    X, Y = np.meshgrid(x, y)
+    d = np.hypot(X[None] - px.reshape(-1, 1, 1), Y[None] - py.reshape(-1, 1, 1)).min(axis=0)
+
+    def chunks_within(dist):
+        rr, cc = np.nonzero(d <= dist)
+        return set(zip((rr // 16).tolist(), (cc // 16).tolist()))
+
+    if method == "bilinear":  # the four corners only: within one cell diagonal
+        assert set(got) <= chunks_within(25e3 * np.sqrt(2))
+    else:
+        assert chunks_within(45e3) <= set(got) <= chunks_within(52e3)
+    assert len(set(got)) < 16 // 2  # of the 4 x 4 chunks, the buoys touch a few
 
 
 @settings(max_examples=30, deadline=None)

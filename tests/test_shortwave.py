@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dask.array
 import numpy as np
 import pandas as pd
 import pvlib
@@ -108,6 +109,53 @@ def test_one_pass_equals_per_track_and_reads_only_what_it_needs():
         cols = ds.longitude.values[key[2]]
         assert rows.min() >= 74.5 and rows.max() <= 79.5
         assert cols.min() >= 17.5 and cols.max() <= 42.5
+
+
+class _ChunkRecorder:
+    """An array for dask.array.from_array that records the (start, stop) of every
+    non-empty block it serves."""
+
+    def __init__(self, values):
+        self.values = np.asarray(values)
+        self.shape, self.dtype, self.ndim = self.values.shape, self.values.dtype, self.values.ndim
+        self.blocks = []
+
+    def __getitem__(self, key):
+        out = self.values[key]
+        if out.size:
+            self.blocks.append(tuple((k.start, k.stop) for k in key))
+        return out
+
+
+def test_chunked_store_reads_each_needed_chunk_once():
+    # Synthetic equivalence: a dask-chunked store gives the in-memory values exactly,
+    # and per track the values of the one-pass call. Expected chunks: those holding a
+    # bilinear corner, from the regular grid's cell indices (by hand).
+    ds, vals, _ = _sw_grid(nt=12)  # 32 rows from 70 N by 0.5, 144 cols from 0 E by 2.5
+    rec = _ChunkRecorder(vals)
+    chunked = ds.copy()
+    chunked["sw_down"] = (("time", "latitude", "longitude"),
+                          dask.array.from_array(rec, chunks=(12, 8, 16)))
+    t = np.arange(12)
+    lat = np.stack([73.23 + 0.05 * t, np.full(12, 80.11), 77.7 - 0.02 * t])
+    lon = np.stack([10.3 + 0.3 * t, np.full(12, 200.4), -100.2 + 0.1 * t])
+    coords = {"time": ds.time.values}
+    lat = xr.DataArray(lat, dims=("track", "time"), coords=coords)
+    lon = xr.DataArray(lon, dims=("track", "time"), coords=coords)
+    together = S.sample_at_tracks(chunked, lat, lon).sw_down.values
+    read = list(rec.blocks)
+    np.testing.assert_array_equal(together, S.sample_at_tracks(ds, lat, lon).sw_down.values)
+    for i in range(3):
+        alone = S.sample_at_tracks(chunked, lat.isel(track=[i]), lon.isel(track=[i]))
+        np.testing.assert_array_equal(alone.sw_down.values[0], together[i])
+    r0 = np.floor((lat.values - 70.0) / 0.5).astype(int)
+    c0 = np.floor(np.mod(lon.values, 360.0) / 2.5).astype(int)
+    expected = {(r // 8, (c % 144) // 16) for rr in (r0, r0 + 1) for cc in (c0, c0 + 1)
+                for r, c in zip(rr.ravel(), cc.ravel())}
+    got = [(rows[0] // 8, cols[0] // 16) for _, rows, cols in read]
+    assert len(got) == len(set(got))  # no chunk read twice
+    assert set(got) == expected
+    assert len(expected) < 36 // 4  # of the 4 x 9 chunks, the tracks touch a few
 
 
 def test_projected_grid_matches_scipy():

@@ -24,9 +24,11 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 from pyproj import CRS, Transformer
+from scipy.spatial import cKDTree
 
 from floeheat import constants as C
 from floeheat.openwater import scale_factor
+from floeheat.shortwave import values_at_indices
 from floeheat.track import hemisphere, working_crs
 
 __all__ = [
@@ -48,6 +50,10 @@ DAILY_MAX_GAP = pd.Timedelta(hours=36)
 
 _VAR = "sea_ice_area_fraction"
 _METHODS = ("mean", "bilinear", "nearest")
+#: Relative and absolute [projection units] widening of the search distance when
+#: selecting candidate cells, so that rounding in the tree search never drops a cell
+#: the exact distance test would keep (floating-point slack only).
+_REACH_RTOL, _REACH_ATOL = 1.0e-9, 1.0e-3
 
 
 def _grid(da: xr.DataArray, attrs: dict, lat_b, crs):
@@ -70,29 +76,98 @@ def _grid(da: xr.DataArray, attrs: dict, lat_b, crs):
     return X, Y, CRS.from_wkt(wkt), (ya, xa)
 
 
-def _bilinear(sub, ya, xa, yb, xb):
-    """Bilinear over valid corners; sub (ny, nx); points (n,). NaN outside the grid."""
-    def axis(a, v):
-        o = np.argsort(a)
-        s = a[o]
-        ok = np.isfinite(v) & (v >= s[0]) & (v <= s[-1])
-        vv = np.where(ok, v, s[0])
-        j = np.clip(np.searchsorted(s, vv, side="right") - 1, 0, max(s.size - 2, 0))
-        j1 = np.minimum(j + 1, s.size - 1)
-        w = np.where(s[j1] > s[j], (vv - s[j]) / np.where(s[j1] > s[j], s[j1] - s[j], 1.0),
-                     0.0)
-        return o[j], o[j1], w, ok
+def _axis_corners(a, v):
+    """Lower/upper indices into axis ``a`` around values v, the upper one's weight, and
+    whether v lies on the axis (NaN-safe; any axis order)."""
+    o = np.argsort(a)
+    s = a[o]
+    ok = np.isfinite(v) & (v >= s[0]) & (v <= s[-1])
+    vv = np.where(ok, v, s[0])
+    j = np.clip(np.searchsorted(s, vv, side="right") - 1, 0, max(s.size - 2, 0))
+    j1 = np.minimum(j + 1, s.size - 1)
+    w = np.where(s[j1] > s[j], (vv - s[j]) / np.where(s[j1] > s[j], s[j1] - s[j], 1.0),
+                 0.0)
+    return o[j], o[j1], w, ok
 
-    r0, r1, wy, oky = axis(ya, yb)
-    c0, c1, wx, okx = axis(xa, xb)
-    vals = np.stack([sub[r0, c0], sub[r0, c1], sub[r1, c0], sub[r1, c1]])
+
+def _bilinear_valid(vals, wy, wx):
+    """Bilinear from corners vals (4, n) (r0 c0, r0 c1, r1 c0, r1 c1) with the upper
+    corners' weights wy, wx (n,) [1], renormalised over the finite corners."""
     wts = np.stack([(1 - wy) * (1 - wx), (1 - wy) * wx, wy * (1 - wx), wy * wx])
     good = np.isfinite(vals)
     wsum = np.where(good, wts, 0.0).sum(axis=0)
     num = np.where(good, wts * np.where(good, vals, 0.0), 0.0).sum(axis=0)
     with np.errstate(invalid="ignore", divide="ignore"):
-        out = np.where(wsum > 0, num / wsum, np.nan)
-    return np.where(oky & okx, out, np.nan)
+        return np.where(wsum > 0, num / wsum, np.nan)
+
+
+def _bilinear_at(da, axes, day, xb, yb, time_chunk) -> np.ndarray:
+    """Concentration [1] bilinear at points (xb, yb) [projection units] on day index
+    ``day`` (all (n,)), reading only the four corners of each; NaN off the grid."""
+    ydim, xdim = da.dims[1], da.dims[2]
+    r0, r1, wy, oky = _axis_corners(axes[0], yb)
+    c0, c1, wx, okx = _axis_corners(axes[1], xb)
+    ok = oky & okx
+    out = np.full(xb.shape, np.nan)
+    if ok.any():
+        n = int(ok.sum())
+        index = {"time": np.tile(day[ok], 4),
+                 ydim: np.concatenate([r0[ok], r0[ok], r1[ok], r1[ok]]),
+                 xdim: np.concatenate([c0[ok], c1[ok], c0[ok], c1[ok]])}
+        vals = values_at_indices(da, index, time_chunk=time_chunk).reshape(4, n)
+        out[ok] = _bilinear_valid(vals, wy[ok], wx[ok])
+    return out
+
+
+def _cells_within(X, Y, xb, yb, reach):
+    """Cells whose centres lie within ``reach`` of each point, by a KD-tree.
+
+    X, Y (ny, nx) are cell centres and xb, yb, reach (n,) the points and distances, all
+    in projection units. Only cells in the points' bounding box widened by the largest
+    reach enter the tree. Returns (point, cell) index pairs, cell a flat index into X,
+    ordered by point then cell.
+    """
+    near = (np.isfinite(X) & np.isfinite(Y)
+            & (X >= np.min(xb - reach)) & (X <= np.max(xb + reach))
+            & (Y >= np.min(yb - reach)) & (Y <= np.max(yb + reach)))
+    cells = np.flatnonzero(near.ravel())
+    if cells.size == 0:
+        return np.empty(0, np.int64), np.empty(0, np.int64)
+    tree = cKDTree(np.column_stack([X.ravel()[cells], Y.ravel()[cells]]))
+    hits = tree.query_ball_point(np.column_stack([xb, yb]), r=reach, return_sorted=True)
+    counts = np.fromiter(map(len, hits), dtype=np.int64, count=len(hits))
+    point = np.repeat(np.arange(xb.size), counts)
+    found = np.concatenate([np.asarray(h, dtype=np.int64) for h in hits])
+    return point, cells[found]
+
+
+def _disc_means(point, d2, f, n_points, kb, radii, nearest_max_m):
+    """Mean f over valid cells within each radius of each point, or the nearest one.
+
+    ``point``, ``d2`` [projection units squared] and ``f`` [1] describe the valid
+    (point, cell) pairs, ordered by point then cell (row-major); ``kb`` (n_points,) is
+    the scale factor at each point. Returns the nearest-cell value (n_points,) [1],
+    NaN beyond ``nearest_max_m`` [m], and the means and cell counts
+    (n_points, n_radius); the mean falls back to the nearest value where no cell lies
+    within the radius.
+    """
+    fn = np.full(n_points, np.nan)
+    if point.size:
+        order = np.lexsort((d2, point))  # nearest first; equal d2: first cell in row-major
+        first = order[np.unique(point[order], return_index=True)[1]]
+        p = point[first]
+        dn = np.sqrt(d2[first]) / kb[p]
+        fn[p] = np.where(dn <= nearest_max_m, f[first], np.nan)
+    means = np.empty((n_points, radii.size))
+    counts = np.zeros((n_points, radii.size), dtype=np.int64)
+    for r, radius in enumerate(radii):
+        inside = d2 <= (radius * kb[point]) ** 2
+        n = np.bincount(point[inside], minlength=n_points)
+        total = np.bincount(point[inside], weights=f[inside], minlength=n_points)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            means[:, r] = np.where(n > 0, total / np.maximum(n, 1), fn)
+        counts[:, r] = n
+    return fn, means, counts
 
 
 def fraction_at_buoys(concentration, latitude, longitude, radii_m=(C.RADIUS_DEFAULT_M,),
@@ -100,8 +175,10 @@ def fraction_at_buoys(concentration, latitude, longitude, radii_m=(C.RADIUS_DEFA
                       time_bnds=None, crs=None, time_chunk: int = 31) -> xr.DataArray:
     """Open-water fraction 1 - C at buoy positions, per day and radius.
 
-    Only the grid rows and columns within the bounding box of all positions (widened by
-    the largest search distance) are read, ``time_chunk`` days at a time.
+    Each position reads only the cells within its own search distance (a KD-tree of the
+    cell centres selects them), all positions of all tracks together: from a chunked
+    (dask, e.g. Zarr) store only the chunks holding such cells, each once; from a
+    variable without chunks the rows and columns used, ``time_chunk`` days at a time.
 
     Parameters
     ----------
@@ -127,7 +204,8 @@ def fraction_at_buoys(concentration, latitude, longitude, radii_m=(C.RADIUS_DEFA
         CRS for grids given by 2-D latitude/longitude (default: the working CRS of the
         buoys' hemisphere). Ignored for projected grids.
     time_chunk : int, optional
-        Days read per pass (default 31).
+        Days read per pass from a variable without chunks (default 31); ignored for
+        chunked variables, which are read along their own chunks.
 
     Returns
     -------
@@ -183,27 +261,17 @@ def fraction_at_buoys(concentration, latitude, longitude, radii_m=(C.RADIUS_DEFA
 
     out = np.full(lat.shape + (radii.size,), np.nan)
     ncell = np.zeros(lat.shape + (radii.size,), dtype=np.int64)
-    if ok_pos.any():
-        dxs = np.nanmedian(np.abs(np.diff(X, axis=1))) if X.shape[1] > 1 else 0.0
-        dys = np.nanmedian(np.abs(np.diff(Y, axis=0))) if Y.shape[0] > 1 else 0.0
-        kmax = float(np.nanmax(np.where(ok_pos, k, np.nan)))
-        reach = kmax * max(float(radii.max()) if method == "mean" else 0.0, nearest_max_m)
-        margin = reach + 2.0 * max(dxs, dys)
-        inbox = ((X >= np.nanmin(xb) - margin) & (X <= np.nanmax(xb) + margin)
-                 & (Y >= np.nanmin(yb) - margin) & (Y <= np.nanmax(yb) + margin))
-        if inbox.any():
-            rr, cc = np.nonzero(inbox)
-            rs = slice(int(rr.min()), int(rr.max()) + 1)
-            cs = slice(int(cc.min()), int(cc.max()) + 1)
-            Xs, Ys = X[rs, cs], Y[rs, cs]
-            ydim, xdim = da.dims[1], da.dims[2]
-            for s in range(0, nt, max(int(time_chunk), 1)):
-                sl = slice(s, min(s + int(time_chunk), nt))
-                block = np.asarray(da.isel(time=sl, **{ydim: rs, xdim: cs}).values, float)
-                for j, day in enumerate(range(sl.start, sl.stop)):
-                    _one_day(block[j], Xs, Ys, axes, rs, cs, xb[:, day], yb[:, day],
-                             k[:, day], radii, method, nearest_max_m,
-                             out[:, day], ncell[:, day])
+    pos = np.flatnonzero(ok_pos.ravel())
+    if pos.size:
+        day = np.unravel_index(pos, lat.shape)[1]
+        px, py, pk = xb.ravel()[pos], yb.ravel()[pos], k.ravel()[pos]
+        flat_out, flat_n = out.reshape(-1, radii.size), ncell.reshape(-1, radii.size)
+        if method == "bilinear":
+            f = 1.0 - _bilinear_at(da, axes, day, px, py, time_chunk)
+            flat_out[pos] = f[:, None]
+        else:
+            flat_out[pos], flat_n[pos] = _fraction_in_discs(
+                da, X, Y, day, px, py, pk, radii, method, nearest_max_m, time_chunk)
 
     mid = _midpoints(da["time"].values, time_bnds)
     coords = {"time": mid, "radius": ("radius", radii, {"units": "m"})}
@@ -218,33 +286,28 @@ def fraction_at_buoys(concentration, latitude, longitude, radii_m=(C.RADIUS_DEFA
                                "long_name": "open-water fraction 1 - sea_ice_area_fraction"})
 
 
-def _one_day(vals, Xs, Ys, axes, rs, cs, xb, yb, kb, radii, method, nearest_max_m,
-             out, ncell):
-    """Fill out (n_track, n_radius) and ncell for one day (in place)."""
+def _fraction_in_discs(da, X, Y, day, xb, yb, kb, radii, method, nearest_max_m,
+                       time_chunk):
+    """f_ow (n, n_radius) [1] and cell counts for "mean" and "nearest" at n points.
+
+    ``day`` is each point's time index into ``da``, xb, yb its position [projection
+    units], kb the scale factor there. The cells within the farthest distance any
+    answer may use (largest radius for "mean", ``nearest_max_m``) are read for the
+    point's own day only.
+    """
+    ground = max(float(radii.max()) if method == "mean" else 0.0, nearest_max_m)
+    reach = kb * ground * (1.0 + _REACH_RTOL) + _REACH_ATOL
+    point, cell = _cells_within(X, Y, xb, yb, reach)
+    row, col = np.unravel_index(cell, X.shape)
+    vals = values_at_indices(da, {"time": day[point], da.dims[1]: row, da.dims[2]: col},
+                             time_chunk=time_chunk)
     good = np.isfinite(vals)
-    f = 1.0 - vals
-    if method == "bilinear":
-        ya, xa = axes[0][rs], axes[1][cs]
-        out[:] = (1.0 - _bilinear(vals, ya, xa, yb, xb))[:, None]
-        return
-    if not good.any():
-        return
-    gx, gy, gf = Xs[good], Ys[good], f[good]
-    d2 = (xb[:, None] - gx[None, :]) ** 2 + (yb[:, None] - gy[None, :]) ** 2
-    d2 = np.where(np.isfinite(d2), d2, np.inf)
-    near = np.argmin(d2, axis=1)
-    dn = np.sqrt(d2[np.arange(xb.size), near]) / kb
-    fn = np.where(dn <= nearest_max_m, gf[near], np.nan)
+    point, cell, f = point[good], cell[good], 1.0 - vals[good]
+    d2 = (xb[point] - X.ravel()[cell]) ** 2 + (yb[point] - Y.ravel()[cell]) ** 2
+    fn, means, counts = _disc_means(point, d2, f, xb.size, kb, radii, nearest_max_m)
     if method == "nearest":
-        out[:] = fn[:, None]
-        return
-    for r, radius in enumerate(radii):
-        inside = d2 <= (radius * kb[:, None]) ** 2
-        n = inside.sum(axis=1)
-        s = np.where(inside, gf[None, :], 0.0).sum(axis=1)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            out[:, r] = np.where(n > 0, s / np.maximum(n, 1), fn)
-        ncell[:, r] = n
+        return np.repeat(fn[:, None], radii.size, axis=1), np.zeros_like(counts)
+    return means, counts
 
 
 def _midpoints(time, time_bnds) -> np.ndarray:

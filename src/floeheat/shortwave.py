@@ -5,8 +5,9 @@ mean over each interval of ``time_bnds``, on a regular ``latitude``/``longitude`
 (any longitude convention, -180..180 or 0..360, global grids periodic) or on projected
 ``x``/``y`` axes with attr ``crs_wkt``. This module
 
-- samples it bilinearly in space at the positions of several tracks at once, in one
-  pass over the grid, chunk by chunk in time (:func:`sample_at_tracks`);
+- samples it bilinearly in space at the positions of several tracks at once, reading
+  each chunk of the grid that holds a needed corner once (:func:`sample_at_tracks`,
+  through :func:`values_at_indices`, which :mod:`floeheat.microwave` shares);
 - resamples interval means to any other intervals so that the energy of every target
   interval equals the source's (:func:`resample_means`, :func:`resample_shortwave`);
 - gives interval energies [J m-2] and, for sanity checks, the solar zenith angle and the
@@ -15,6 +16,7 @@ mean over each interval of ``time_bnds``, on a regular ``latitude``/``longitude`
 
 from __future__ import annotations
 
+import dask
 import numpy as np
 import pandas as pd
 import xarray as xr
@@ -24,6 +26,7 @@ from floeheat import constants as C
 
 __all__ = [
     "sample_at_tracks",
+    "values_at_indices",
     "resample_means",
     "resample_shortwave",
     "interval_energy",
@@ -36,6 +39,114 @@ _NS = 1.0e-9
 #: Relative shortfall of covered time below which a target interval still counts as
 #: fully covered (rounding of float seconds only).
 _COVER_TOL = 1.0e-9
+#: Time steps read at once from a variable without chunks of its own (in memory or
+#: lazily indexed); chunked (dask) variables are read chunk by chunk instead.
+TIME_BLOCK_UNCHUNKED = 240
+
+
+# --- reading ------------------------------------------------------------------------
+
+
+def _block_ids(index: np.ndarray, chunks: tuple[int, ...]) -> tuple[np.ndarray, np.ndarray]:
+    """Block number along one axis of each index, and the index within its block."""
+    edges = np.cumsum((0,) + tuple(chunks))
+    block = np.searchsorted(edges, index, side="right") - 1
+    return block, index - edges[block]
+
+
+def _pick(block, local: tuple[np.ndarray, ...]) -> np.ndarray:
+    """Values of one loaded block at block-local integer indices."""
+    return np.asarray(block)[local]
+
+
+def _gather_chunked(arr, index: tuple[np.ndarray, ...]) -> np.ndarray:
+    """Values of a dask array at integer indices, each block holding one read once.
+
+    The indices are grouped by the block they fall in; one task per touched block
+    loads it and picks its points, and all tasks run in one ``dask.compute`` on the
+    array's graph, optimised once (``to_delayed``), so untouched blocks are never read.
+    """
+    ids, local = zip(*(_block_ids(i, ch) for i, ch in zip(index, arr.chunks, strict=True)),
+                     strict=True)
+    key = np.ravel_multi_index(ids, arr.numblocks)
+    # the smallest integer type lets numpy's stable sort use radix sort
+    order = np.argsort(key.astype(np.min_scalar_type(max(key.max(), 0))), kind="stable")
+    counts = np.bincount(key)
+    keys = np.flatnonzero(counts)
+    stops = np.cumsum(counts)[keys]
+    starts = stops - counts[keys]
+    blocks = arr.to_delayed().ravel()
+    tasks = [dask.delayed(_pick, pure=False)(blocks[k], tuple(loc[order[a:b]] for loc in local))
+             for k, a, b in zip(keys, starts, stops, strict=True)]
+    out = np.empty(key.size, dtype=float)
+    for a, b, vals in zip(starts, stops, dask.compute(*tasks), strict=True):
+        out[order[a:b]] = vals
+    return out
+
+
+def _gather_unchunked(da: xr.DataArray, index: tuple[np.ndarray, ...],
+                      time_block: int) -> np.ndarray:
+    """Values of a variable without chunks (in memory or lazily indexed) at indices.
+
+    Along every dim but the first (time) only the indices used are read; along time
+    ``time_block`` steps at a time, skipping blocks no index falls in.
+    """
+    t = index[0]
+    rest = [np.unique(i) for i in index[1:]]
+    sub = da.isel({d: u for d, u in zip(da.dims[1:], rest, strict=True)})
+    local = tuple(np.searchsorted(u, i) for u, i in zip(rest, index[1:], strict=True))
+    out = np.empty(t.size, dtype=float)
+    step = max(int(time_block), 1)
+    for s in np.unique(t // step) * step:
+        sel = np.flatnonzero((t >= s) & (t < s + step))
+        block = np.asarray(sub.isel({da.dims[0]: slice(s, s + step)}).values, dtype=float)
+        out[sel] = block[(t[sel] - s,) + tuple(loc[sel] for loc in local)]
+    return out
+
+
+def values_at_indices(da: xr.DataArray, index: dict[str, np.ndarray], *,
+                      time_chunk: int | None = None) -> np.ndarray:
+    """Values of a gridded variable at integer grid indices, each needed chunk read once.
+
+    A chunked (dask) variable, such as a Zarr store opened lazily, is read block by
+    block along its own chunks: only the blocks holding some index are loaded, each
+    once, whatever the number of indices in it. A variable without chunks is read
+    ``time_chunk`` steps at a time, only the indices used along the other dims.
+
+    Parameters
+    ----------
+    da : xarray.DataArray
+        The variable, any number of dims; may be lazy (dask or lazily indexed).
+    index : dict of str to array_like of int
+        One integer index array per dim of ``da`` (all of the same length); the first
+        key is the time dim for variables without chunks.
+    time_chunk : int, optional
+        Time steps read at once from a variable without chunks (default
+        :data:`TIME_BLOCK_UNCHUNKED`); ignored for chunked variables.
+
+    Returns
+    -------
+    numpy.ndarray of float
+        ``da`` at the given indices (units of ``da``).
+
+    Examples
+    --------
+    >>> da = xr.DataArray(np.arange(24.0).reshape(2, 3, 4), dims=("time", "y", "x"))
+    >>> ix = {"time": np.array([0, 1]), "y": np.array([2, 0]), "x": np.array([1, 3])}
+    >>> values_at_indices(da, ix).tolist(), values_at_indices(da.chunk(2), ix).tolist()
+    ([9.0, 15.0], [9.0, 15.0])
+    """
+    dims = tuple(index)
+    if set(dims) != set(da.dims) or len(dims) != da.ndim:
+        raise ValueError(f"need one index per dim of {da.dims}, got {dims}")
+    idx = tuple(np.asarray(index[d], dtype=np.int64).ravel() for d in dims)
+    if idx[0].size == 0:
+        return np.empty(0, dtype=float)
+    da = da.transpose(*dims)
+    if da.chunks is not None:
+        return _gather_chunked(da.data, idx)
+    return _gather_unchunked(da, idx, TIME_BLOCK_UNCHUNKED if time_chunk is None
+                             else time_chunk)
 
 
 # --- space --------------------------------------------------------------------------
@@ -78,14 +189,37 @@ def _grid_axes(sw: xr.Dataset, var: str, lat, lon):
                      f"got {da.dims}")
 
 
+def _corner_values(da: xr.DataArray, tpos, rows, cols, time_chunk) -> np.ndarray:
+    """Values at the four grid corners (r0 c0, r0 c1, r1 c0, r1 c1) of each point.
+
+    ``rows`` and ``cols`` are (dim, lower indices, upper indices); ``tpos`` the time
+    index of each point. Returns shape (4, n_points), in the units of ``da``.
+    """
+    (dy, r0, r1), (dx, c0, c1) = rows, cols
+    n = tpos.size
+    index = {"time": np.tile(tpos, 4),
+             dy: np.concatenate([r0, r0, r1, r1]),
+             dx: np.concatenate([c0, c1, c0, c1])}
+    return values_at_indices(da, index, time_chunk=time_chunk).reshape(4, n)
+
+
+def _bilinear_corners(v: np.ndarray, wy, wx) -> np.ndarray:
+    """Bilinear value from corners v (4, n) as in :func:`_corner_values` and the upper
+    corners' weights wy, wx (n,) [1]; a NaN corner gives NaN."""
+    return ((1 - wy) * (1 - wx) * v[0] + (1 - wy) * wx * v[1]
+            + wy * (1 - wx) * v[2] + wy * wx * v[3])
+
+
 def sample_at_tracks(sw: xr.Dataset, latitude: xr.DataArray, longitude: xr.DataArray,
-                     *, var: str = "sw_down", time_chunk: int = 240) -> xr.Dataset:
+                     *, var: str = "sw_down", time_chunk: int | None = None) -> xr.Dataset:
     """Bilinear shortwave at the moving positions of several tracks, in one pass.
 
-    Only the grid rows and columns that some track needs (at most the bounding box of
-    all tracks, plus the next grid line) are read, ``time_chunk`` source intervals at a
-    time; no track is read on its own. A position outside the grid is NaN; a NaN corner
-    gives NaN.
+    The four grid corners of every position of every track are read together
+    (:func:`values_at_indices`): from a chunked (dask, e.g. Zarr) store only the chunks
+    holding some corner, each once, along the store's own chunks in time and space;
+    from a variable without chunks the grid rows and columns some track needs,
+    ``time_chunk`` source intervals at a time. No track is read on its own. A position
+    outside the grid is NaN; a NaN corner gives NaN.
 
     Parameters
     ----------
@@ -100,7 +234,9 @@ def sample_at_tracks(sw: xr.Dataset, latitude: xr.DataArray, longitude: xr.DataA
     var : str, optional
         Variable to sample (default ``"sw_down"``).
     time_chunk : int, optional
-        Source intervals read per pass (default 240).
+        Source intervals read per pass from a variable without chunks (default
+        :data:`TIME_BLOCK_UNCHUNKED`); ignored for chunked variables, which are read
+        along their own chunks.
 
     Returns
     -------
@@ -142,26 +278,11 @@ def sample_at_tracks(sw: xr.Dataset, latitude: xr.DataArray, longitude: xr.DataA
     r0, r1, wy, oky = _axis_weights(sw[dy].values, vy, periodic=False)
     c0, c1, wx, okx = _axis_weights(sw[dx].values, vx, periodic=periodic)
     ok = oky & okx
-    rows = np.unique(np.concatenate([r0[ok], r1[ok]]))
-    cols = np.unique(np.concatenate([c0[ok], c1[ok]]))
     out = np.full(lat.shape, np.nan)
-    da = sw[var].transpose("time", dy, dx)
-    if rows.size and cols.size:
-        ir0, ir1 = np.searchsorted(rows, r0), np.searchsorted(rows, r1)
-        ic0, ic1 = np.searchsorted(cols, c0), np.searchsorted(cols, c1)
-        ir0, ir1 = np.minimum(ir0, rows.size - 1), np.minimum(ir1, rows.size - 1)
-        ic0, ic1 = np.minimum(ic0, cols.size - 1), np.minimum(ic1, cols.size - 1)
-        for s in range(0, tpos.size, max(int(time_chunk), 1)):
-            sl = slice(s, min(s + int(time_chunk), tpos.size))
-            sub = np.asarray(da.isel(time=tpos[sl], **{dy: rows, dx: cols}).values,
-                             dtype=float)
-            tt = np.broadcast_to(np.arange(sl.stop - sl.start), lat[:, sl].shape)
-            a, b = wy[:, sl], wx[:, sl]
-            v = ((1 - a) * (1 - b) * sub[tt, ir0[:, sl], ic0[:, sl]]
-                 + (1 - a) * b * sub[tt, ir0[:, sl], ic1[:, sl]]
-                 + a * (1 - b) * sub[tt, ir1[:, sl], ic0[:, sl]]
-                 + a * b * sub[tt, ir1[:, sl], ic1[:, sl]])
-            out[:, sl] = np.where(ok[:, sl], v, np.nan)
+    if ok.any():
+        corners = _corner_values(sw[var], np.broadcast_to(tpos, lat.shape)[ok],
+                                 (dy, r0[ok], r1[ok]), (dx, c0[ok], c1[ok]), time_chunk)
+        out[ok] = _bilinear_corners(corners, wy[ok], wx[ok])
     time = sw["time"].values[tpos]
     coords = {"time": time}
     if "track" in latitude.coords:

@@ -12,6 +12,7 @@ from hypothesis import strategies as st
 from pyproj import CRS, Geod, Transformer
 from scipy.interpolate import RegularGridInterpolator
 
+from chunk_recorder import ChunkRecorder
 from floeheat import microwave as M
 
 WKT_3413 = CRS("EPSG:3413").to_wkt()
@@ -132,22 +133,6 @@ def test_latlon_grid_equals_projected_grid_and_tracks_vectorised():
         M.fraction_at_buoys(curv, lat, lon, radii, method="bilinear")
 
 
-class _ChunkRecorder:
-    """An array for dask.array.from_array that records the (start, stop) of every
-    non-empty block it serves."""
-
-    def __init__(self, values):
-        self.values = np.asarray(values)
-        self.shape, self.dtype, self.ndim = self.values.shape, self.values.dtype, self.values.ndim
-        self.blocks = []
-
-    def __getitem__(self, key):
-        out = self.values[key]
-        if out.size:
-            self.blocks.append(tuple((k.start, k.stop) for k in key))
-        return out
-
-
 @pytest.mark.parametrize("method", ["mean", "nearest", "bilinear"])
 def test_chunked_store_one_pass_reads_only_chunks_within_reach(method):
     # Synthetic equivalence: a dask-chunked store gives the in-memory values exactly,
@@ -161,7 +146,7 @@ def test_chunked_store_one_pass_reads_only_chunks_within_reach(method):
     c = rng.uniform(0.0, 1.0, (4, y.size, x.size))
     c[rng.uniform(size=c.shape) < 0.2] = np.nan
     ds = _conc(c, x, y)
-    rec = _ChunkRecorder(c)
+    rec = ChunkRecorder(c)
     chunked = ds.copy()
     chunked["sea_ice_area_fraction"] = (("time", "y", "x"),
                                         dask.array.from_array(rec, chunks=(4, 16, 16)),

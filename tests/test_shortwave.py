@@ -15,6 +15,7 @@ from scipy.interpolate import RegularGridInterpolator
 from xarray.backends import BackendArray
 from xarray.core import indexing
 
+from chunk_recorder import ChunkRecorder
 from floeheat import shortwave as S
 
 
@@ -111,28 +112,12 @@ def test_one_pass_equals_per_track_and_reads_only_what_it_needs():
         assert cols.min() >= 17.5 and cols.max() <= 42.5
 
 
-class _ChunkRecorder:
-    """An array for dask.array.from_array that records the (start, stop) of every
-    non-empty block it serves."""
-
-    def __init__(self, values):
-        self.values = np.asarray(values)
-        self.shape, self.dtype, self.ndim = self.values.shape, self.values.dtype, self.values.ndim
-        self.blocks = []
-
-    def __getitem__(self, key):
-        out = self.values[key]
-        if out.size:
-            self.blocks.append(tuple((k.start, k.stop) for k in key))
-        return out
-
-
 def test_chunked_store_reads_each_needed_chunk_once():
     # Synthetic equivalence: a dask-chunked store gives the in-memory values exactly,
     # and per track the values of the one-pass call. Expected chunks: those holding a
     # bilinear corner, from the regular grid's cell indices (by hand).
     ds, vals, _ = _sw_grid(nt=12)  # 32 rows from 70 N by 0.5, 144 cols from 0 E by 2.5
-    rec = _ChunkRecorder(vals)
+    rec = ChunkRecorder(vals)
     chunked = ds.copy()
     chunked["sw_down"] = (("time", "latitude", "longitude"),
                           dask.array.from_array(rec, chunks=(12, 8, 16)))

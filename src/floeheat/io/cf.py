@@ -23,6 +23,7 @@ from floeheat.units import conversion, parse_units
 
 __all__ = [
     "open_netcdf",
+    "open_netcdf_windowed",
     "find_variable",
     "find_first",
     "units_of",
@@ -71,10 +72,7 @@ def open_netcdf(path, *, chunks=None, mask_and_scale: bool = True,
     ArchiveError
         When the file is missing, not NetCDF, truncated or corrupt.
     """
-    path = Path(path)
-    if not path.is_file():
-        raise ArchiveError.at(str(path), "", "the file does not exist",
-                              "check the path in the archive's tables or folders")
+    path = _existing(path)
     try:
         if probe:
             _check_classic_size(path)
@@ -91,10 +89,68 @@ def open_netcdf(path, *, chunks=None, mask_and_scale: bool = True,
     except ArchiveError:
         raise
     except _OPEN_ERRORS as exc:
-        raise ArchiveError.at(
-            str(path), "", f"cannot be read as NetCDF, it may be truncated or corrupt ({exc})",
-            "copy the file again from its source, or remove it from the archive") from exc
+        raise _unreadable(path, exc) from exc
     return ds
+
+
+def open_netcdf_windowed(path, *, mask_and_scale: bool = True) -> xr.Dataset:
+    """Open a NetCDF file for reading windows: the header now, then only what is indexed.
+
+    NetCDF-4 (HDF5) files are read through h5py (:mod:`floeheat.io._hdf5`), which
+    reads the file's metadata and then only the chunks a selection touches; the NetCDF
+    library would first read the file's first 4 MiB to identify its format. Classic
+    files (their size checked against their header, no data read), and NetCDF-4 files
+    using features that reader leaves to the NetCDF library, open as
+    ``open_netcdf(path, probe=False)``. Both give the same Dataset; times are left as
+    numbers (see :func:`decode_time`).
+
+    Parameters
+    ----------
+    path : str or Path
+        The file.
+    mask_and_scale : bool
+        Apply ``_FillValue``/``missing_value``/``scale_factor``/``add_offset``.
+
+    Returns
+    -------
+    xarray.Dataset
+        Lazy: variables other than dimension coordinates are read when indexed.
+
+    Raises
+    ------
+    ArchiveError
+        When the file is missing, not NetCDF, truncated or corrupt (a damaged chunk
+        fails only when it is read).
+    """
+    from floeheat.io import _hdf5
+
+    path = _existing(path)
+    ds = None
+    try:
+        if _hdf5.is_hdf5(path):
+            ds = _hdf5.open_dataset(path, mask_and_scale=mask_and_scale)
+        else:
+            _check_classic_size(path)
+    except _OPEN_ERRORS as exc:
+        raise _unreadable(path, exc) from exc
+    return ds if ds is not None else open_netcdf(path, probe=False,
+                                                 mask_and_scale=mask_and_scale)
+
+
+def _existing(path) -> Path:
+    """``path`` as a Path; ArchiveError when there is no such file."""
+    path = Path(path)
+    if not path.is_file():
+        raise ArchiveError.at(str(path), "", "the file does not exist",
+                              "check the path in the archive's tables or folders")
+    return path
+
+
+def _unreadable(path: Path, exc: Exception) -> ArchiveError:
+    """The error for a file the NetCDF (or HDF5) library cannot read."""
+    return ArchiveError.at(
+        str(path), "", f"cannot be read as NetCDF, it may be truncated or corrupt ({exc})",
+        "copy the file again from its source, or remove it from the archive")
 
 
 def _check_classic_size(path: Path) -> None:

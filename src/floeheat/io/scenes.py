@@ -1,5 +1,10 @@
 """Radar scenes (GeoTIFF or CF NetCDF): a handle that reads windows, never whole files.
 
+A window costs about the bytes of the tiles or chunks it touches plus the file's
+header: GeoTIFF is read through GDAL with an unbuffered opener
+(:func:`floeheat.io._raster.exact_opener`), NetCDF-4 through h5py
+(:func:`floeheat.io.cf.open_netcdf_windowed`), classic NetCDF through the NetCDF library.
+
 Masks are returned in the package's canonical coding (``constants.MASK_CODES``:
 0 water, 1 ice, 255 no data) whatever the file's coding (``mask_codes``); codes
 that belong to no class read as no data. Backscatter is float32 sigma0 with NaN for
@@ -9,6 +14,7 @@ converted with ``scale='linear'`` / ``scale='dB'``.
 
 from __future__ import annotations
 
+import re
 import warnings
 from pathlib import Path
 
@@ -19,7 +25,7 @@ import pyproj
 from floeheat.constants import MASK_CODES
 from floeheat.errors import ArchiveError
 from floeheat.io.archive import parse_iso_time
-from floeheat.io.cf import canonical, crs_of, open_netcdf
+from floeheat.io.cf import canonical, crs_of, open_netcdf_windowed
 
 __all__ = ["Scene", "open_scene", "INCIDENCE_ANGLE", "NOISE_PREFIX"]
 
@@ -28,6 +34,8 @@ INCIDENCE_ANGLE = "incidence_angle"
 #: Prefix of noise-floor bands: ``noise_equivalent_sigma0`` or ``..._<pol>``.
 NOISE_PREFIX = "noise_equivalent_sigma0"
 _CONTENTS = ("mask", "backscatter")
+#: What GDAL (rasterio), HDF5 (h5py) and the NetCDF library raise for unreadable data.
+_READ_ERRORS = (OSError, RuntimeError)
 
 
 def open_scene(path, content: str, bands=None, mask_codes=None) -> Scene:
@@ -107,10 +115,14 @@ class Scene:
     def _open_tiff(self):
         import rasterio
 
+        from floeheat.io._raster import exact_opener
+
         try:
-            self._src = rasterio.open(self.path)
+            # GDAL then reads exactly the header, directory and tiles it needs
+            self._src = rasterio.open(self.path, opener=exact_opener)
         except rasterio.errors.RasterioIOError as exc:
-            raise ArchiveError.at(str(self.path), "", f"cannot be read as GeoTIFF ({exc})",
+            raise ArchiveError.at(str(self.path), "",
+                                  f"cannot be read as GeoTIFF ({_library_message(exc)})",
                                   "copy the file again from its source") from exc
         src = self._src
         if src.crs is None:
@@ -137,7 +149,7 @@ class Scene:
         return names, units, tags
 
     def _open_netcdf(self):
-        ds = open_netcdf(self.path, probe=False, mask_and_scale=self.content != "mask")
+        ds = open_netcdf_windowed(self.path, mask_and_scale=self.content != "mask")
         self._ds = ds
         xname, yname = self._axis("projection_x_coordinate", "x"), self._axis(
             "projection_y_coordinate", "y")
@@ -267,10 +279,18 @@ class Scene:
         if rs != 1 or cs != 1:
             raise ValueError("read_window takes slices with step 1")
         r1, c1 = max(r1, r0), max(c1, c0)
-        if self._src is not None:
-            data, nodata = self._read_tiff(band, r0, r1, c0, c1)
-        else:
-            data, nodata = self._read_netcdf(band, r0, r1, c0, c1)
+        try:
+            if self._src is not None:
+                data, nodata = self._read_tiff(band, r0, r1, c0, c1)
+            else:
+                data, nodata = self._read_netcdf(band, r0, r1, c0, c1)
+        except _READ_ERRORS as exc:
+            raise ArchiveError.at(
+                str(self.path), self._place(band),
+                f"rows {r0}:{r1}, columns {c0}:{c1} cannot be read, the file may be "
+                f"truncated or corrupt ({_library_message(exc)})",
+                "copy the file again from its source, or remove it from the archive"
+            ) from exc
         if self.content == "mask":
             return self._canonical_mask(data)
         data = data.astype("float32")
@@ -292,6 +312,12 @@ class Scene:
         window = var.isel({self._ydim: slice(r0, r1), self._xdim: slice(c0, c1)})
         data = np.asarray(window.transpose(self._ydim, self._xdim).values)
         return data, None
+
+    def _place(self, band) -> str:
+        """Where a band is in the file, for messages."""
+        if self._src is not None:
+            return f"band {self._index[band]} ({band})"
+        return f"variable {self._vars[band]}"
 
     def _canonical_mask(self, data):
         out = np.full(data.shape, MASK_CODES["nodata"], dtype="uint8")
@@ -330,6 +356,21 @@ class Scene:
     def __repr__(self):
         return (f"Scene({str(self.path)!r}, content={self.content!r}, shape={self.shape}, "
                 f"bands={self.bands})")
+
+
+def _library_message(exc: BaseException) -> str:
+    """A reading library's message with its chained cause, and without the name rasterio
+    gives the opener's virtual file system (the file is named in the error already).
+
+    Examples
+    --------
+    >>> _library_message(OSError("'/vsiriopener_0a1b//data/s.tif' not recognized"))
+    "'/data/s.tif' not recognized"
+    """
+    text = str(exc)
+    if exc.__cause__ is not None:
+        text = f"{text}: {exc.__cause__}"
+    return re.sub(r"/vsiriopener_[0-9a-f]+/", "", text)
 
 
 def _transform(x, y, path, xname, yname) -> affine.Affine:

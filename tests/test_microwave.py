@@ -100,13 +100,19 @@ def test_bilinear_matches_scipy_and_renormalises():
     assert float(out2[0, 0]) == pytest.approx(1.0 - np.sum(w * v) / np.sum(w), rel=1e-9)
 
 
+def _random_conc(seed, x0_m, y0_m, n, days, nan_fraction):
+    """A random daily concentration on an n x n grid of 25 km cells from (x0, y0), with
+    ``nan_fraction`` of the cells missing: the generator, axes, values and Dataset."""
+    rng = np.random.default_rng(seed)
+    x = x0_m + np.arange(n) * 25e3
+    y = y0_m + np.arange(n) * 25e3
+    c = rng.uniform(0.0, 1.0, (days, y.size, x.size))
+    c[rng.uniform(size=c.shape) < nan_fraction] = np.nan
+    return rng, x, y, c, _conc(c, x, y)
+
+
 def test_latlon_grid_equals_projected_grid_and_tracks_vectorised():
-    rng = np.random.default_rng(4)
-    x = -1000e3 + np.arange(30) * 25e3
-    y = 200e3 + np.arange(30) * 25e3
-    c = rng.uniform(0, 1, (3, y.size, x.size))
-    c[rng.uniform(size=c.shape) < 0.1] = np.nan
-    ds = _conc(c, x, y)
+    rng, x, y, c, ds = _random_conc(4, -1000e3, 200e3, 30, 3, 0.1)
     X, Y = np.meshgrid(x, y)
     glat, glon = _ll(X, Y)
     curv = xr.Dataset(
@@ -140,12 +146,7 @@ def test_chunked_store_one_pass_reads_only_chunks_within_reach(method):
     # every chunk holding a cell within 45 km of a buoy and none without a cell within
     # 52 km (the search distance is nearest_max_m = 50 km times the local scale factor,
     # 0.97-1.0 here; brute-force distances on the grid).
-    rng = np.random.default_rng(5)
-    x = -1500e3 + np.arange(64) * 25e3
-    y = 100e3 + np.arange(64) * 25e3
-    c = rng.uniform(0.0, 1.0, (4, y.size, x.size))
-    c[rng.uniform(size=c.shape) < 0.2] = np.nan
-    ds = _conc(c, x, y)
+    rng, x, y, c, ds = _random_conc(5, -1500e3, 100e3, 64, 4, 0.2)
     rec = ChunkRecorder(c)
     chunked = ds.copy()
     chunked["sea_ice_area_fraction"] = (("time", "y", "x"),

@@ -246,3 +246,17 @@ def test_windowed_open_leaves_other_files_to_the_netcdf_library(tmp_path):
     for path in (strings, classic):
         with cf.open_netcdf_windowed(path) as got, cf.open_netcdf(path, probe=False) as want:
             xr.testing.assert_identical(got, want)
+
+
+def test_cf_degree_spellings_agree_with_the_units_registry():
+    # CF Conventions 1.11, sections 4.1-4.2: the recommended latitude/longitude units;
+    # reference: pint with cf-xarray's registry (PyPI) reads each as degrees of that axis
+    from floeheat.io.cf import _CF_DEGREES, is_degrees
+    from floeheat.units import parse_units
+
+    for axis, spellings in _CF_DEGREES.items():
+        assert len(spellings) == 6
+        for units in spellings:
+            assert is_degrees(units, axis)
+            assert str(parse_units(units)) == f"degrees_{axis}"
+    assert not is_degrees("degrees_north", "east")

@@ -6,6 +6,7 @@ Config may override the defaults; code never writes these numbers anywhere else.
 from __future__ import annotations
 
 __all__ = [
+    "M_PER_CM",
     "CP0_J_KG_K",
     "RHO0_KG_M3",
     "RHO_WATER_DEFAULT_KG_M3",
@@ -61,6 +62,13 @@ __all__ = [
     "BULK_DISAGREE_FACTOR",
     "BULK_MIN_FLUX_W_M2",
 ]
+
+# --- Units ----------------------------------------------------------------------
+#: Metres per centimetre: the SI prefix centi, 1e-2. Source: The International System
+#: of Units (SI Brochure, BIPM, 9th ed. 2019), Table 7. Used where the archive contract
+#: fixes a unit by name (thermistor columns T_<depth in cm>); units read from files go
+#: through floeheat.units.
+M_PER_CM = 1e-2
 
 # --- Seawater (TEOS-10) ---------------------------------------------------------
 #: Specific heat of seawater used with conservative temperature.

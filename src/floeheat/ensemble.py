@@ -258,7 +258,7 @@ def radar_member_fractions(scene_time, n_water, n_valid, coverage, radius_m, tar
     >>> out[:, 0, 0].round(3).tolist()
     [0.1, 0.2]
     """
-    from floeheat.openwater import MAX_SCENE_GAP, radar_time_series
+    from floeheat.openwater import MAX_SCENE_GAP, radar_series_arrays
 
     nw = np.asarray(n_water, float)
     nv = np.asarray(n_valid, float)
@@ -276,13 +276,13 @@ def radar_member_fractions(scene_time, n_water, n_valid, coverage, radius_m, tar
         if noise is None:
             key = keep.tobytes()
             if key not in cache:
-                cache[key] = radar_time_series(scene_time, np.where(keep, f, np.nan),
-                                               target_time, rad, max_gap=gap).values
+                cache[key] = radar_series_arrays(scene_time, np.where(keep, f, np.nan),
+                                                 target_time, rad, gap)[0]
             out[m] = cache[key]
             continue
         fm = np.clip(f + np.asarray(noise)[m][:, None] * sd, 0.0, 1.0)
-        out[m] = radar_time_series(scene_time, np.where(keep, fm, np.nan), target_time,
-                                   rad, max_gap=gap).values
+        out[m] = radar_series_arrays(scene_time, np.where(keep, fm, np.nan), target_time,
+                                     rad, gap)[0]
     return out
 
 
@@ -482,7 +482,9 @@ def budget_members(
 
     starts = range(0, n_members, max(1, int(chunk_members)))
     blocks = [slice(a, min(a + int(chunk_members), n_members)) for a in starts]
-    with dask.config.set(scheduler="threads", num_workers=max(1, int(threads))):
+    # one thread: run the blocks in this thread (the same blocks, the same numbers)
+    scheduler = "threads" if int(threads) > 1 else "synchronous"
+    with dask.config.set(scheduler=scheduler, num_workers=max(1, int(threads))):
         parts = dask.compute(*[dask.delayed(block)(sl) for sl in blocks])
     t_season, resid, w_t = (np.concatenate([p[k] for p in parts], axis=0) for k in range(3))
     complete = np.isfinite(np.asarray(budget["t_season"].values, float))

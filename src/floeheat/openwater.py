@@ -38,6 +38,7 @@ __all__ = [
     "CircleStats",
     "circle_fractions",
     "radar_time_series",
+    "radar_series_arrays",
     "FLAG_MEANINGS",
     "MAX_SCENE_GAP",
 ]
@@ -323,6 +324,55 @@ def _ns_int(t) -> np.ndarray:
     return t.astype(np.int64)
 
 
+def radar_series_arrays(scene_time, f_ow, target_time, radius_m,
+                        max_gap=MAX_SCENE_GAP) -> tuple[np.ndarray, np.ndarray]:
+    """The numbers of :func:`radar_time_series`: ``(f_ow, flag)``, each (n_time,
+    n_radius), as plain arrays (for loops over ensemble members)."""
+    ts_all = _ns_int(scene_time).ravel()
+    fv = np.asarray(f_ow, dtype=float)
+    if fv.ndim == 1:
+        fv = fv[:, None]
+    rad = np.atleast_1d(np.asarray(radius_m, dtype=float))
+    if fv.shape != (ts_all.size, rad.size):
+        raise ValueError(f"f_ow must have shape (n_scene, n_radius) = "
+                         f"{(ts_all.size, rad.size)}, got {fv.shape}")
+    td = np.asarray(getattr(target_time, "values", target_time),
+                    dtype="datetime64[ns]").ravel().astype(np.int64)
+    gap = int(pd.Timedelta(max_gap).value)
+    out = np.full((td.size, rad.size), np.nan)
+    flag = np.zeros((td.size, rad.size), dtype=np.int8)
+    for k in range(rad.size):
+        ok = np.isfinite(fv[:, k])
+        if not ok.any():
+            flag[:, k] = 4
+            continue
+        xs, inv = np.unique(ts_all[ok], return_inverse=True)  # same-time scenes averaged
+        ys = np.bincount(inv, weights=fv[ok, k]) / np.bincount(inv)
+        i = np.searchsorted(xs, td, side="right") - 1
+        exact = (i >= 0) & (xs[np.clip(i, 0, None)] == td)
+        v = np.full(td.size, np.nan)
+        fl = np.zeros(td.size, dtype=np.int8)
+        v[exact] = ys[i[exact]]
+        mid = ~exact & (i >= 0) & (i < xs.size - 1)
+        im = i[mid]
+        x0, x1 = xs[im], xs[np.minimum(im + 1, xs.size - 1)]
+        w = (td[mid] - x0).astype(float) / np.maximum(x1 - x0, 1).astype(float)
+        vm = ys[im] * (1.0 - w) + ys[np.minimum(im + 1, xs.size - 1)] * w
+        long_gap = (x1 - x0) > gap
+        v[mid] = np.where(long_gap, np.nan, vm)
+        fl[mid] = np.where(long_gap, 1, 0)
+        before = i < 0
+        hold_b = before & (xs[0] - td <= gap)
+        v[hold_b] = ys[0]
+        fl[before & ~hold_b] = 2
+        after = ~exact & (i == xs.size - 1)
+        hold_a = after & (td - xs[-1] <= gap)
+        v[hold_a] = ys[-1]
+        fl[after & ~hold_a] = 3
+        out[:, k], flag[:, k] = v, fl
+    return out, flag
+
+
 def radar_time_series(scene_time, f_ow, target_time, radius_m,
                       max_gap=MAX_SCENE_GAP) -> xr.DataArray:
     """Radar f_ow at any times from per-scene values, per radius.
@@ -362,49 +412,10 @@ def radar_time_series(scene_time, f_ow, target_time, radius_m,
     >>> out.values[:, 0].round(3).tolist(), out.flag.values[:, 0].tolist()
     ([0.2, nan], [0, 3])
     """
-    ts_all = _ns_int(scene_time).ravel()
-    fv = np.asarray(f_ow, dtype=float)
-    if fv.ndim == 1:
-        fv = fv[:, None]
-    rad = np.atleast_1d(np.asarray(radius_m, dtype=float))
-    if fv.shape != (ts_all.size, rad.size):
-        raise ValueError(f"f_ow must have shape (n_scene, n_radius) = "
-                         f"{(ts_all.size, rad.size)}, got {fv.shape}")
     td_dt = np.asarray(getattr(target_time, "values", target_time),
                        dtype="datetime64[ns]").ravel()
-    td = td_dt.astype(np.int64)
-    gap = int(pd.Timedelta(max_gap).value)
-    out = np.full((td.size, rad.size), np.nan)
-    flag = np.zeros((td.size, rad.size), dtype=np.int8)
-    for k in range(rad.size):
-        ok = np.isfinite(fv[:, k])
-        if not ok.any():
-            flag[:, k] = 4
-            continue
-        xs, inv = np.unique(ts_all[ok], return_inverse=True)  # same-time scenes averaged
-        ys = np.bincount(inv, weights=fv[ok, k]) / np.bincount(inv)
-        i = np.searchsorted(xs, td, side="right") - 1
-        exact = (i >= 0) & (xs[np.clip(i, 0, None)] == td)
-        v = np.full(td.size, np.nan)
-        fl = np.zeros(td.size, dtype=np.int8)
-        v[exact] = ys[i[exact]]
-        mid = ~exact & (i >= 0) & (i < xs.size - 1)
-        im = i[mid]
-        x0, x1 = xs[im], xs[np.minimum(im + 1, xs.size - 1)]
-        w = (td[mid] - x0).astype(float) / np.maximum(x1 - x0, 1).astype(float)
-        vm = ys[im] * (1.0 - w) + ys[np.minimum(im + 1, xs.size - 1)] * w
-        long_gap = (x1 - x0) > gap
-        v[mid] = np.where(long_gap, np.nan, vm)
-        fl[mid] = np.where(long_gap, 1, 0)
-        before = i < 0
-        hold_b = before & (xs[0] - td <= gap)
-        v[hold_b] = ys[0]
-        fl[before & ~hold_b] = 2
-        after = ~exact & (i == xs.size - 1)
-        hold_a = after & (td - xs[-1] <= gap)
-        v[hold_a] = ys[-1]
-        fl[after & ~hold_a] = 3
-        out[:, k], flag[:, k] = v, fl
+    rad = np.atleast_1d(np.asarray(radius_m, dtype=float))
+    out, flag = radar_series_arrays(scene_time, f_ow, td_dt, rad, max_gap)
     flag_da = xr.DataArray(flag, dims=("time", "radius"),
                            attrs={"flag_values": list(range(len(FLAG_MEANINGS))),
                                   "flag_meanings": " ".join(FLAG_MEANINGS)})

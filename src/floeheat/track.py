@@ -28,6 +28,7 @@ __all__ = [
     "reject_fast_fixes",
     "to_working_crs",
     "interpolate_track",
+    "interpolate_positions",
     "clean_track",
 ]
 
@@ -305,6 +306,40 @@ def to_working_crs(latitude_deg, longitude_deg, crs=C.CRS_WORKING_NORTH):
     return np.asarray(x, dtype=float), np.asarray(y, dtype=float)
 
 
+def interpolate_positions(time, latitude_deg, longitude_deg, target_time, crs=None,
+                          max_gap=None):
+    """The numbers of :func:`interpolate_track` as plain arrays: ``(latitude,
+    longitude, x_m, y_m, crs)`` (no xarray objects, for per-scene loops and small jobs).
+    """
+    t = _ns(time).astype(np.int64).astype(float) * _NS
+    lat = np.asarray(latitude_deg, dtype=float).ravel()
+    lon = np.asarray(longitude_deg, dtype=float).ravel()
+    td = _ns(target_time)
+    ts = td.astype(np.int64).astype(float) * _NS
+    ok = np.isfinite(lat) & np.isfinite(lon) & np.isfinite(t)
+    t, lat, lon = t[ok], lat[ok], lon[ok]
+    if crs is None:
+        crs = working_crs(hemisphere(lat))
+    xo = np.full(ts.shape, np.nan)
+    yo = np.full(ts.shape, np.nan)
+    if t.size >= 1:
+        x, y = to_working_crs(lat, lon, crs)
+        inside = (ts >= t[0]) & (ts <= t[-1])
+        xo[inside] = np.interp(ts[inside], t, x)
+        yo[inside] = np.interp(ts[inside], t, y)
+        if max_gap is not None and t.size >= 2:
+            gap_s = pd.Timedelta(max_gap).total_seconds()
+            i = np.clip(np.searchsorted(t, ts, side="right") - 1, 0, t.size - 2)
+            on_fix = np.isin(ts, t)
+            bad = inside & ~on_fix & (t[i + 1] - t[i] > gap_s)
+            xo[bad] = yo[bad] = np.nan
+    tr = Transformer.from_crs(CRS.from_user_input(crs), "EPSG:4326", always_xy=True)
+    lono, lato = tr.transform(xo, yo)
+    lono = np.where(np.isfinite(xo), _wrap_lon(lono), np.nan)
+    lato = np.where(np.isfinite(yo), lato, np.nan)
+    return lato, lono, xo, yo, crs
+
+
 def interpolate_track(time, latitude_deg, longitude_deg, target_time, crs=None,
                       max_gap=None) -> xr.Dataset:
     """Positions at any times, linear in a projected CRS between neighbouring fixes.
@@ -340,32 +375,9 @@ def interpolate_track(time, latitude_deg, longitude_deg, target_time, crs=None,
     >>> round(abs(float(out.longitude[0])), 6), out.attrs["crs"]
     (180.0, 'EPSG:3413')
     """
-    t = _ns(time).astype(np.int64).astype(float) * _NS
-    lat = np.asarray(latitude_deg, dtype=float).ravel()
-    lon = np.asarray(longitude_deg, dtype=float).ravel()
     td = _ns(target_time)
-    ts = td.astype(np.int64).astype(float) * _NS
-    ok = np.isfinite(lat) & np.isfinite(lon) & np.isfinite(t)
-    t, lat, lon = t[ok], lat[ok], lon[ok]
-    if crs is None:
-        crs = working_crs(hemisphere(lat))
-    xo = np.full(ts.shape, np.nan)
-    yo = np.full(ts.shape, np.nan)
-    if t.size >= 1:
-        x, y = to_working_crs(lat, lon, crs)
-        inside = (ts >= t[0]) & (ts <= t[-1])
-        xo[inside] = np.interp(ts[inside], t, x)
-        yo[inside] = np.interp(ts[inside], t, y)
-        if max_gap is not None and t.size >= 2:
-            gap_s = pd.Timedelta(max_gap).total_seconds()
-            i = np.clip(np.searchsorted(t, ts, side="right") - 1, 0, t.size - 2)
-            on_fix = np.isin(ts, t)
-            bad = inside & ~on_fix & (t[i + 1] - t[i] > gap_s)
-            xo[bad] = yo[bad] = np.nan
-    tr = Transformer.from_crs(CRS.from_user_input(crs), "EPSG:4326", always_xy=True)
-    lono, lato = tr.transform(xo, yo)
-    lono = np.where(np.isfinite(xo), _wrap_lon(lono), np.nan)
-    lato = np.where(np.isfinite(yo), lato, np.nan)
+    lato, lono, xo, yo, crs = interpolate_positions(time, latitude_deg, longitude_deg,
+                                                    target_time, crs, max_gap)
     return _track_dataset(td, lato, lono, xo, yo, crs)
 
 

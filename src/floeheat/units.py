@@ -47,6 +47,18 @@ def parse_units(text: str):
         raise ValueError(f"units {text!r} are not understood ({exc})") from exc
 
 
+def _as_float(values):
+    return np.asarray(values, dtype="float64")
+
+
+def _same_spelling(from_units, to_units) -> bool:
+    """Both strings spell the same units exactly (after the alias table)."""
+    if from_units is None or to_units is None:
+        return False
+    a, b = str(from_units).strip(), str(to_units).strip()
+    return bool(a) and _ALIASES.get(a, a) == _ALIASES.get(b, b)
+
+
 def conversion(from_units: str, to_units: str):
     """Return a function converting numbers from ``from_units`` to ``to_units``.
 
@@ -61,20 +73,24 @@ def conversion(from_units: str, to_units: str):
     >>> float(conversion("%", "1")(50.0))
     0.5
     """
+    if _same_spelling(from_units, to_units):
+        # the file already uses the wanted spelling: nothing to convert, and no need to
+        # load the registry (about 2 s per process, most of a small job's work)
+        return _as_float
     ureg = _registry()
     src = parse_units(from_units)
     dst = parse_units(to_units)
     # Practical salinity is dimensionless in the registry but not a fraction: "psu"
     # and "1" both mean the PSS-78 number itself.
     if {str(src), str(dst)} <= {"practical_salinity_unit", "dimensionless"}:
-        return lambda v: np.asarray(v, dtype="float64")
+        return _as_float
     if src.dimensionality != dst.dimensionality:
         raise ValueError(
             f"units {from_units!r} cannot be converted to {to_units!r} "
             f"({src.dimensionality} vs {dst.dimensionality})"
         )
     if src == dst:
-        return lambda v: np.asarray(v, dtype="float64")
+        return _as_float
 
     def _convert(values):
         q = ureg.Quantity(np.asarray(values, dtype="float64"), src)

@@ -457,8 +457,25 @@ def normalise_longitude(lon):
     return (np.asarray(lon, dtype="float64") + 180.0) % 360.0 - 180.0
 
 
+#: The spellings CF Conventions 1.11 (sections 4.1 and 4.2) recommend for latitude and
+#: longitude units: recognised without loading the units registry.
+_CF_DEGREES = {axis: {f"{d}{sep}{a}" for d in ("degree", "degrees")
+                      for sep, a in (("_", axis), ("_", axis[0].upper()), ("", axis[0].upper()))}
+               for axis in ("north", "east")}
+
+
 def is_degrees(units: str, axis: str) -> bool:
-    """Whether ``units`` are CF degrees for ``axis`` in {'north', 'east'}."""
+    """Whether ``units`` are CF degrees for ``axis`` in {'north', 'east'}.
+
+    Examples
+    --------
+    >>> is_degrees("degrees_north", "north"), is_degrees("degreeE", "east")
+    (True, True)
+    >>> is_degrees("m", "north")
+    False
+    """
+    if str(units).strip() in _CF_DEGREES[axis]:
+        return True
     try:
         parsed = str(parse_units(units))
     except ValueError:

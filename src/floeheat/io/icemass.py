@@ -13,6 +13,7 @@ from pathlib import Path
 import numpy as np
 import xarray as xr
 
+from floeheat import constants
 from floeheat.errors import ArchiveError
 from floeheat.io._csv import numeric_column, read_data_csv, time_column
 from floeheat.io.cf import (
@@ -25,7 +26,7 @@ from floeheat.io.cf import (
     open_netcdf,
     units_of,
 )
-from floeheat.units import convert, parse_units
+from floeheat.units import parse_units
 
 __all__ = ["read_icemass", "CSV_SENSOR_COLUMN", "UNSPECIFIED_REFERENCE"]
 
@@ -131,7 +132,7 @@ def _csv(path: Path) -> dict:
     check_increasing(time, file=path, where="column time (index = data row, 0 = line 2)")
     depth_cm = np.array([float(m.group(1)) for _, m in sensors])
     return {"time": time,
-            "depth": convert(depth_cm, "cm", "m"),
+            "depth": depth_cm * constants.M_PER_CM,  # the contract names them in cm
             "reference": UNSPECIFIED_REFERENCE,
             "temperature": np.column_stack([numeric_column(table, c, file=path)
                                             for c, _ in sensors]),

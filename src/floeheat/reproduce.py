@@ -40,8 +40,10 @@ OVERRIDE_KEY = "pin_override"
 #: Keys that say where a run reads and writes, not how it computes: the archive is
 #: pinned by its files' checksums, and the results folder is free.
 LOCATION_KEYS = ("archive", "results")
+#: How the work is cut into jobs: the outputs are the same for any value.
+JOB_KEYS = ("jobs",)
 #: Top-level config keys that are not settings of the computation.
-NOT_SETTINGS = LOCATION_KEYS + (PIN_KEY, OVERRIDE_KEY)
+NOT_SETTINGS = LOCATION_KEYS + JOB_KEYS + (PIN_KEY, OVERRIDE_KEY)
 #: Columns that identify a row of each output table (shown for a differing row).
 KEY_COLUMNS = {
     "seasonal.csv": ("deployment_id", "source", "radius_m"),

@@ -1,18 +1,23 @@
-# The per-deployment budget: forcing and microwave open water sampled at the track,
-# radar fractions in time, storage, ice base and the budget terms -> budget.zarr.
+# The budget of each deployment (one job per part): forcing and microwave open water
+# sampled at the track, radar fractions in time, storage, ice base and the budget
+# terms -> budget.zarr.
 
 
 rule budget:
     input:
-        insitu=f"{RESULTS}/deployments/{{deployment}}/status/insitu.json",
-        radar=f"{RESULTS}/deployments/{{deployment}}/status/radar.json",
+        insitu=part_record("insitu"),
+        radar=part_record("radar"),
         shortwave=f"{RESULTS}/forcing/shortwave.zarr",
         concentration=f"{RESULTS}/forcing/concentration.zarr",
         shortwave_csv=get_shortwave_csv,
     output:
-        status=f"{RESULTS}/deployments/{{deployment}}/status/budget.json",
+        record=part_record("budget"),
     params:
-        row=get_sheet_row,
+        rows=get_part_rows,
+        insitu=part_status("insitu"),
+        radar=part_status("radar"),
+        status=part_status("budget"),
+        shortwave_csv=part_shortwave_csv,
         radar_max_gap_days=config["radar"]["max_gap_days"],
         microwave=config["microwave"],
         budget=config["budget"],
@@ -21,10 +26,10 @@ rule budget:
         ice=config["ice"],
         coverage_threshold=config["radar"]["coverage_threshold"],
     log:
-        f"{RESULTS}/logs/budget/{{deployment}}.log",
+        f"{RESULTS}/logs/budget/{{part}}.log",
     threads: 1
     resources:
-        mem_mb=sized_mb(1500, per_input_mb=2.0),
+        mem_mb=sized_mb(1500, per_input_mb=2.0, per_member=True),
         runtime=sized_min(15, per_input_gb_min=30),
     script:
         "../scripts/budget.py"

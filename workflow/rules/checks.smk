@@ -5,11 +5,12 @@
 
 rule bulkflux:
     input:
-        insitu=all_stage_status("insitu"),
+        insitu=all_part_records("insitu"),
     output:
         table=f"{RESULTS}/tables/bulkflux.csv",
         windows=f"{RESULTS}/tables/bulkflux_windows.csv",
     params:
+        insitu=all_stage_status("insitu"),
         array_ids=get_array_ids,
         settings=BULKFLUX_SETTINGS,
     log:

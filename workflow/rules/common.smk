@@ -13,12 +13,21 @@ STAGES = ("insitu", "radar", "budget")
 
 wildcard_constraints:
     deployment=r"[A-Za-z0-9][A-Za-z0-9_-]{0,63}",
+    part=r"part-\d+",
+
+
+_INDEX_CACHE = {}
 
 
 def index_table():
-    """The validated deployment sheet written by checkpoint index."""
+    """The validated deployment sheet written by checkpoint index (read once per
+    version of the file: input functions ask for it for every job)."""
     path = checkpoints.index.get().output.deployments
-    return pd.read_csv(path, dtype=str, keep_default_na=False)
+    key = (path, os.stat(path).st_mtime_ns)
+    if key not in _INDEX_CACHE:
+        _INDEX_CACHE.clear()
+        _INDEX_CACHE[key] = pd.read_csv(path, dtype=str, keep_default_na=False)
+    return _INDEX_CACHE[key]
 
 
 def deployment_ids():
@@ -40,23 +49,69 @@ def existing(relpath):
     return [path] if os.path.exists(path) else []
 
 
+# --- parts: consecutive deployments sharing one job of each per-deployment stage ----
+# (floeheat.steps.parts). Rules insitu, match_scenes, radar and budget run per part;
+# each writes every member's own status record and declares the part's record.
+def parts():
+    """Part name -> its deployment ids (sheet order, at most jobs.max_per_stage parts)."""
+    from floeheat.steps.parts import deployment_parts
+
+    return deployment_parts(deployment_ids(), config["jobs"]["max_per_stage"])
+
+
+def part_members(wildcards):
+    return parts()[wildcards.part]
+
+
+def status_path(deployment, stage):
+    """A deployment's status record of one stage (written by its part's job)."""
+    return f"{RESULTS}/deployments/{deployment}/status/{stage}.json"
+
+
+def part_record(stage):
+    """The declared output of a per-deployment stage's job, as an input pattern."""
+    return f"{RESULTS}/parts/{stage}/{{part}}.json"
+
+
+def part_status(stage):
+    """deployment -> status record of ``stage``, for the members of one part (params)."""
+
+    def _paths(wildcards):
+        return {d: status_path(d, stage) for d in part_members(wildcards)}
+
+    return _paths
+
+
+def part_matches(wildcards):
+    """deployment -> its matches.csv, for the members of one part (params)."""
+    return {d: f"{RESULTS}/deployments/{d}/matches.csv" for d in part_members(wildcards)}
+
+
+def get_part_rows(wildcards):
+    """The sheet rows of one part's deployments, as plain dicts (params)."""
+    table = index_table()
+    rows = table[table["deployment_id"].isin(part_members(wildcards))]
+    return rows.to_dict(orient="records")
+
+
 def get_insitu_files(wildcards):
-    row = deployment_row(wildcards.deployment)
-    return {
-        "profiles": existing(row["profile_file"]),
-        "icemass": existing(row["icemass_file"]),
-    }
+    files = {"profiles": [], "icemass": []}
+    for dep in part_members(wildcards):
+        row = deployment_row(dep)
+        files["profiles"] += existing(row["profile_file"])
+        files["icemass"] += existing(row["icemass_file"])
+    return files
 
 
-def get_sheet_row(wildcards):
-    """The deployment's sheet row as a plain dict (passed as params)."""
-    return deployment_row(wildcards.deployment).to_dict()
+def part_matches_table(wildcards):
+    """The matches of one part's deployments (its match_scenes checkpoint)."""
+    path = checkpoints.match_scenes.get(part=wildcards.part).output.matches
+    return pd.read_csv(path, dtype=str, keep_default_na=False)
 
 
 def get_matched_scenes(wildcards):
-    """Scene files matched to one deployment by its match_scenes checkpoint."""
-    path = checkpoints.match_scenes.get(deployment=wildcards.deployment).output.matches
-    matches = pd.read_csv(path, dtype=str, keep_default_na=False)
+    """Scene files matched to one part's deployments by its match_scenes checkpoint."""
+    matches = part_matches_table(wildcards)
     return [p for rel in sorted(set(matches["path"])) for p in existing(rel)]
 
 
@@ -78,14 +133,33 @@ def get_forcing_files(wildcards):
 
 
 def get_shortwave_csv(wildcards):
-    return existing(deployment_row(wildcards.deployment)["shortwave_file"])
+    """Point shortwave files of one part's deployments (inputs)."""
+    return sorted({p for d in part_members(wildcards)
+                   for p in existing(deployment_row(d)["shortwave_file"])})
+
+
+def part_shortwave_csv(wildcards):
+    """deployment -> its point shortwave files, for one part (params)."""
+    return {d: existing(deployment_row(d)["shortwave_file"]) for d in part_members(wildcards)}
+
+
+def all_part_records(stage):
+    """Every part's record of ``stage`` (inputs of the run-wide rules)."""
+
+    def _inputs(wildcards):
+        return [part_record(stage).format(part=name) for name in parts()]
+
+    return _inputs
 
 
 def all_stage_status(stage):
-    def _inputs(wildcards):
-        return [f"{RESULTS}/deployments/{d}/status/{stage}.json" for d in deployment_ids()]
+    """Every deployment's status record of ``stage``, in sheet order (params of the
+    run-wide rules, which declare the parts' records as inputs)."""
 
-    return _inputs
+    def _paths(wildcards):
+        return [status_path(d, stage) for d in deployment_ids()]
+
+    return _paths
 
 
 # --- where a 1-D budget holds (rules tables, bulkflux) ----------------------------
@@ -119,12 +193,17 @@ def get_array_ids(wildcards):
 
 
 # --- job resources sized from the inputs (profiles/slurm sends them to sbatch) -------
-def sized_mb(base_mb, per_input_mb=0.0, cap_mb=64000):
+def sized_mb(base_mb, per_input_mb=0.0, cap_mb=64000, per_member=False):
     """mem_mb for a rule: ``base_mb`` plus ``per_input_mb`` per MB of input, capped, and
-    doubled on each retry (``attempt``) so that a job killed for memory asks for more."""
+    doubled on each retry (``attempt``) so that a job killed for memory asks for more.
+    ``per_member``: a part's job holds one deployment at a time, so its input size is
+    shared out over the part's members (their mean)."""
 
     def _mem(wildcards, input, attempt):
-        return int(min(cap_mb, base_mb + per_input_mb * input.size_mb) * 2 ** (attempt - 1))
+        size = input.size_mb
+        if per_member:
+            size /= max(1, len(part_members(wildcards)))
+        return int(min(cap_mb, base_mb + per_input_mb * size) * 2 ** (attempt - 1))
 
     return _mem
 
@@ -177,19 +256,23 @@ def get_classify_files(wildcards):
 
 
 def get_classified_stores(wildcards):
-    """Matched backscatter scene_id -> classified store, for the scenes of one deployment
-    that no matched mask of the same time serves."""
+    """Matched backscatter scene_id -> classified store, for the scenes of one part's
+    deployments that no matched mask of the same time serves (per deployment)."""
     from floeheat.steps.classify import acquisitions
 
-    path = checkpoints.match_scenes.get(deployment=wildcards.deployment).output.matches
-    matches = pd.read_csv(path, dtype=str, keep_default_na=False)
-    mask_times = set(matches.loc[matches["content"] == "mask", "time"])
-    wanted = matches[(matches["content"] == "backscatter") & ~matches["time"].isin(mask_times)]
+    matches = part_matches_table(wildcards)
+    wanted = set()
+    for _, own in matches.groupby("deployment_id"):
+        mask_times = set(own.loc[own["content"] == "mask", "time"])
+        back = own[(own["content"] == "backscatter") & ~own["time"].isin(mask_times)]
+        wanted |= set(back["scene_id"])
+    if not wanted:
+        return {}
     acq = acquisitions(scene_table())
     key_of = dict(zip(acq["scene_id"], acq["acquisition"]))
     batch_of = {k: b for b, keys in classify_batches().items() for k in keys}
     return {sid: classified_store(key_of[sid], batch_of)
-            for sid in sorted(set(wanted["scene_id"])) if sid in key_of}
+            for sid in sorted(wanted) if sid in key_of}
 
 
 def get_classified_batches(wildcards):

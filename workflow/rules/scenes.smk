@@ -1,8 +1,8 @@
-# Radar scenes: footprints read once per run, a per-deployment checkpoint that matches
-# scenes to the track (so the DAG fans out over deployments and their matched scenes),
-# and the open-water fractions and floe context per deployment, batched over its matched
-# scenes (one job reads only the window of pixels each circle needs from every mask or
-# classified store, rule classify).
+# Radar scenes: footprints read once per run, a checkpoint per part of the deployments
+# that matches scenes to each track (so the DAG fans out over the parts and their
+# matched scenes), and the open-water fractions and floe context of each deployment,
+# one job per part over its members' matched scenes (reading only the window of pixels
+# each circle needs from every mask or classified store, rule classify).
 
 
 rule scene_footprints:
@@ -26,14 +26,16 @@ rule scene_footprints:
 checkpoint match_scenes:
     input:
         footprints=f"{RESULTS}/index/footprints.csv",
-        insitu=f"{RESULTS}/deployments/{{deployment}}/status/insitu.json",
+        insitu=part_record("insitu"),
     output:
-        matches=f"{RESULTS}/deployments/{{deployment}}/matches.csv",
+        matches=f"{RESULTS}/parts/match_scenes/{{part}}.csv",
     params:
+        insitu=part_status("insitu"),
+        matches=part_matches,
         radii_m=config["radar"]["radii_m"],
         coverage_threshold=config["radar"]["coverage_threshold"],
     log:
-        f"{RESULTS}/logs/match_scenes/{{deployment}}.log",
+        f"{RESULTS}/logs/match_scenes/{{part}}.log",
     threads: 1
     resources:
         mem_mb=500,
@@ -44,26 +46,29 @@ checkpoint match_scenes:
 
 rule radar:
     input:
-        insitu=f"{RESULTS}/deployments/{{deployment}}/status/insitu.json",
-        matches=f"{RESULTS}/deployments/{{deployment}}/matches.csv",
+        insitu=part_record("insitu"),
+        matches=f"{RESULTS}/parts/match_scenes/{{part}}.csv",
         scenes=get_matched_scenes,
         classified=get_classified_batches,
     output:
-        status=f"{RESULTS}/deployments/{{deployment}}/status/radar.json",
+        record=part_record("radar"),
     params:
         archive=ARCHIVE,
+        insitu=part_status("insitu"),
+        matches=part_matches,
+        status=part_status("radar"),
         radii_m=config["radar"]["radii_m"],
         coverage_threshold=config["radar"]["coverage_threshold"],
         mask_codes=config["radar"]["mask_codes"],
         classified=get_classified_stores,
         floe_radius_m=config["radar"]["floe_radius_m"],
     log:
-        f"{RESULTS}/logs/radar/{{deployment}}.log",
+        f"{RESULTS}/logs/radar/{{part}}.log",
     threads: 1
     resources:
         # only the windows the circles need are read, so memory barely grows with the
         # scenes' size; time grows with the bytes of the matched scenes
-        mem_mb=sized_mb(1500, per_input_mb=0.01, cap_mb=8000),
+        mem_mb=sized_mb(1500, per_input_mb=0.01, cap_mb=8000, per_member=True),
         runtime=sized_min(10, per_input_gb_min=5),
     script:
         "../scripts/radar.py"

@@ -5,7 +5,7 @@
 
 rule tables:
     input:
-        budgets=all_stage_status("budget"),
+        budgets=all_part_records("budget"),
         rejected=f"{RESULTS}/index/rejected.csv",
         bathymetry=get_bathymetry_files,
     output:
@@ -19,6 +19,7 @@ rule tables:
         windows=f"{RESULTS}/tables/windows.csv",
         attribution=f"{RESULTS}/tables/attribution.csv",
     params:
+        budgets=all_stage_status("budget"),
         climatology=config["climatology"],
         screen=config["screen"],
     log:
@@ -37,7 +38,7 @@ rule manifest:
         climatology=f"{RESULTS}/tables/climatology.csv",
         failures=f"{RESULTS}/tables/failures.csv",
         figures=f"{RESULTS}/figures",
-        budgets=all_stage_status("budget"),
+        budgets=all_part_records("budget"),
         # Recorded by checksum: a new lock reruns the manifest.
         lock=[LOCK] if os.path.exists(LOCK) else [],
     output:

@@ -4,5 +4,5 @@ from floeheat.steps.status import setup_logging
 
 sm = snakemake  # noqa: F821 (injected by Snakemake)
 setup_logging(sm.log[0])
-run_bulkflux(list(sm.input.insitu), dict(sm.params.array_ids), sm.output.table,
+run_bulkflux(list(sm.params.insitu), dict(sm.params.array_ids), sm.output.table,
              sm.output.windows, settings=dict(sm.params.settings))

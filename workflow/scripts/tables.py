@@ -7,11 +7,11 @@ from floeheat.steps.tables import run_tables
 
 sm = snakemake  # noqa: F821 (injected by Snakemake)
 setup_logging(sm.log[0])
-run_screen(list(sm.input.budgets), list(sm.input.bathymetry), sm.output.screen,
+run_screen(list(sm.params.budgets), list(sm.input.bathymetry), sm.output.screen,
            sm.output.screen_windows, sm.output.screen_track, settings=dict(sm.params.screen))
-run_tables(list(sm.input.budgets), sm.input.rejected, sm.output.seasonal,
+run_tables(list(sm.params.budgets), sm.input.rejected, sm.output.seasonal,
            sm.output.climatology, sm.output.failures, sm.output.windows,
            climatology=dict(sm.params.climatology),
            screen_windows=sm.output.screen_windows,
            unsplit_csv=sm.output.climatology_unsplit)
-write_attribution(list(sm.input.budgets), sm.output.attribution)
+write_attribution(list(sm.params.budgets), sm.output.attribution)

@@ -8,6 +8,7 @@ the output contract plus the deployment's seasonal rows and window records.
 
 from __future__ import annotations
 
+import functools
 import json
 import logging
 from pathlib import Path
@@ -35,7 +36,9 @@ log = logging.getLogger(__name__)
 _DAY = np.timedelta64(1, "D")
 
 
+@functools.lru_cache(maxsize=4)
 def _open_store(path: str) -> xr.Dataset | None:
+    """The forcing store, opened lazily once per process (a part's deployments share it)."""
     ds = xr.open_zarr(path, consolidated=True)
     return None if ds.attrs.get("absent") else ds
 

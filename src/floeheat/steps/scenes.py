@@ -32,7 +32,8 @@ from floeheat.steps.status import StageFailed, atomic_path, read_status, run_sta
 
 __all__ = ["MATCH_COLUMNS", "FRACTION_COLUMNS", "FLOE_COLUMNS", "FOOTPRINT_COLUMNS",
            "run_scene_footprints",
-           "match_track", "run_match_scenes", "run_radar", "position_at", "read_track"]
+           "match_track", "run_match_scenes", "run_match_part", "run_radar", "position_at",
+           "positions_at", "read_track"]
 
 log = logging.getLogger(__name__)
 
@@ -55,19 +56,34 @@ def read_track(path: str | Path) -> pd.DataFrame:
     return pd.read_csv(path, parse_dates=["time"])
 
 
-def position_at(track: pd.DataFrame, times, crs) -> tuple[np.ndarray, np.ndarray,
-                                                          np.ndarray, np.ndarray]:
-    """Track position at ``times``: (lat, lon, x, y) with x/y in ``crs`` (NaN outside)."""
-    pos = trk.interpolate_track(track["time"].values, track["latitude"].values,
-                                track["longitude"].values,
-                                np.asarray(times, dtype="datetime64[ns]"))
-    lat, lon = pos["latitude"].values, pos["longitude"].values
+def positions_at(track: pd.DataFrame, times) -> tuple[np.ndarray, np.ndarray]:
+    """Track latitude and longitude at ``times`` [degrees], NaN outside the track: one
+    interpolation for all the times (a deployment's scenes are placed in one call)."""
+    lat, lon, *_ = trk.interpolate_positions(track["time"].values,
+                                             track["latitude"].values,
+                                             track["longitude"].values,
+                                             np.asarray(times, dtype="datetime64[ns]"))
+    return lat, lon
+
+
+def _projected(lat: np.ndarray, lon: np.ndarray, crs) -> tuple[np.ndarray, np.ndarray]:
     ok = np.isfinite(lat)
     x = np.full(lat.shape, np.nan)
     y = np.full(lat.shape, np.nan)
     if ok.any():
         x[ok], y[ok] = trk.to_working_crs(lat[ok], lon[ok], crs)
-    return lat, lon, x, y
+    return x, y
+
+
+def position_at(track: pd.DataFrame, times, crs) -> tuple[np.ndarray, np.ndarray,
+                                                          np.ndarray, np.ndarray]:
+    """Track position at ``times``: (lat, lon, x, y) with x/y in ``crs`` (NaN outside)."""
+    lat, lon = positions_at(track, times)
+    return (lat, lon, *_projected(lat, lon, crs))
+
+
+def _scene_time(text) -> np.datetime64:
+    return np.datetime64(pd.Timestamp(text).tz_localize(None), "ns")
 
 
 #: Columns of footprints.csv: each scene's grid, read once from its header.
@@ -110,13 +126,13 @@ def match_track(footprints: pd.DataFrame, track: pd.DataFrame, deployment_id: st
     inside = footprints[(times >= t0) & (times <= t1)]
     rows = []
     crs_cache: dict[str, CRS] = {}
-    for fp in inside.itertuples(index=False):
-        crs = crs_cache.setdefault(fp.crs_wkt, CRS.from_wkt(fp.crs_wkt))
-        t = np.datetime64(pd.Timestamp(fp.time).tz_localize(None), "ns")
-        lat, lon, x, y = position_at(track, [t], crs)
-        if not np.isfinite(x[0]):
+    lats, lons = positions_at(track, [_scene_time(t) for t in inside["time"]])
+    for fp, lat, lon in zip(inside.itertuples(index=False), lats, lons):
+        if not np.isfinite(lat):
             continue
-        radii_proj = openwater.projected_radius(radii, crs, lon[0], lat[0])
+        crs = crs_cache.setdefault(fp.crs_wkt, CRS.from_wkt(fp.crs_wkt))
+        x, y = _projected(np.array([lat]), np.array([lon]), crs)
+        radii_proj = openwater.projected_radius(radii, crs, lon, lat)
         transform = Affine(fp.a, fp.b, fp.c, fp.d, fp.e, fp.f)
         cover = openwater.scene_coverage(transform, (int(fp.rows), int(fp.cols)), x[0], y[0],
                                          radii_proj)
@@ -146,11 +162,25 @@ def run_match_scenes(footprints_csv: str, insitu_status: str, matches_csv: str, 
     return matches
 
 
+def run_match_part(footprints_csv: str, insitu_status: dict[str, str],
+                   matches_csv: dict[str, str], part_csv: str, *, radii_m: list[float],
+                   coverage_threshold: float) -> pd.DataFrame:
+    """Checkpoint of one part: each member's matches.csv, then the part's (all members'
+    rows, in member order), which tells the workflow which scene files the part reads."""
+    frames = [run_match_scenes(footprints_csv, insitu_status[dep], matches_csv[dep],
+                               radii_m=radii_m, coverage_threshold=coverage_threshold)
+              for dep in matches_csv]
+    frames = [f for f in frames if len(f)]
+    table = (pd.concat(frames, ignore_index=True) if frames
+             else pd.DataFrame(columns=list(MATCH_COLUMNS)))
+    with atomic_path(Path(part_csv)) as tmp:
+        table.to_csv(tmp, index=False, float_format="%.10g", lineterminator="\n")
+    return table
+
+
 def _inputs(archive: Path, matched: list[dict], classified: dict, mask_codes: dict) -> list:
     """(label, time, content, opener) per scene to read: masks, and the classified store
     of each backscatter acquisition whose time no matched mask shares."""
-    from floeheat.steps.classify import open_classified
-
     out, seen = [], set()
     mask_times = {m["time"] for m in matched if m["content"] == "mask"}
     for m in sorted(matched, key=lambda m: (m["time"], m["scene_id"])):
@@ -164,8 +194,15 @@ def _inputs(archive: Path, matched: list[dict], classified: dict, mask_codes: di
             label = store.name.removesuffix(".zarr")
             if label not in seen and store.exists():
                 seen.add(label)
-                out.append((label, m["time"], CLASSIFIED, lambda s=store: open_classified(s)))
+                out.append((label, m["time"], CLASSIFIED, lambda s=store: _open_classified(s)))
     return out
+
+
+def _open_classified(store: Path):
+    # scikit-image comes with the classifier: only deployments with backscatter pay it
+    from floeheat.steps.classify import open_classified
+
+    return open_classified(store)
 
 
 def _fractions(archive: Path, track: pd.DataFrame, matched: list[dict], radii_m: list[float],
@@ -176,14 +213,14 @@ def _fractions(archive: Path, track: pd.DataFrame, matched: list[dict], radii_m:
     radii = np.asarray(sorted(radii_m), dtype=float)
     floe_r = float(min(floe_radius_m or radii[-1], radii[-1]))
     rows, floe_rows = [], []
-    for label, time, content, opener in _inputs(archive, matched, classified or {},
-                                                mask_codes):
-        t = np.datetime64(pd.Timestamp(time).tz_localize(None), "ns")
+    inputs = _inputs(archive, matched, classified or {}, mask_codes)
+    lats, lons = positions_at(track, [_scene_time(i[1]) for i in inputs])
+    for (label, time, content, opener), lat, lon in zip(inputs, lats, lons):
+        if not np.isfinite(lat):
+            continue
         with opener() as sc:
-            lat, lon, x, y = position_at(track, [t], sc.crs)
-            if not np.isfinite(x[0]):
-                continue
-            radii_proj = openwater.projected_radius(radii, sc.crs, lon[0], lat[0])
+            x, y = _projected(np.array([lat]), np.array([lon]), sc.crs)
+            radii_proj = openwater.projected_radius(radii, sc.crs, lon, lat)
             window = openwater.circle_window(sc.transform, sc.shape, x[0], y[0],
                                              float(np.max(radii_proj)))
             if window is None:

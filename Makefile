@@ -30,9 +30,11 @@ test: $(STAMP)
 	$(BIN)/python -m pytest -q
 
 # Benchmarks (benchmarks/README.md): every target at the issue's sizes; pass e.g.
-# BENCH_ARGS="--only 1 --scale quick" to run one target at a reduced size.
+# BENCH_ARGS="--only 1 --scale quick" to run one target at a reduced size. Synthesized
+# archives are kept in BENCH_SCRATCH and reused by the next run.
+BENCH_SCRATCH ?= /tmp/floeheat-bench
 bench: $(STAMP)
-	$(BIN)/python -m benchmarks $(BENCH_ARGS)
+	$(BIN)/python -m benchmarks --scratch $(BENCH_SCRATCH) $(BENCH_ARGS)
 
 lint: $(STAMP)
 	$(BIN)/ruff check src tests

@@ -1,4 +1,5 @@
-"""Stage ``figures``: every figure of a run in one job (batched, so reruns stay cheap)."""
+"""Stage ``figures``: every figure of a run in one job (batched, so reruns stay cheap;
+the per-deployment figures drawn by as many processes as the job has threads)."""
 
 from __future__ import annotations
 
@@ -46,37 +47,65 @@ def _attribution_rows(attribution_csv: str | None) -> tuple[pd.DataFrame, str]:
     return pd.DataFrame(picks), ", ".join(sorted(labels))
 
 
+def _deployment_figures(path: str, seasonal: pd.DataFrame, tmp: Path):
+    """One deployment's figures into ``tmp/deployments/<id>/``; returns ``(written,
+    deployment_id, track)``, or None for a failed budget."""
+    record = read_status(path)
+    if not record.get("ok"):
+        return None
+    dep = record["deployment_id"]
+    ds = xr.open_zarr(record["budget_zarr"], consolidated=True).load()
+    scene_times = pd.read_csv(record["radar_fractions"], parse_dates=["time"])["time"] \
+        if record.get("radar_fractions") else []
+    dep_rows = seasonal[seasonal["deployment_id"] == dep]
+    figures = [("budget", fig.budget_figure(ds, dep)),
+               ("openwater", fig.openwater_figure(ds, scene_times, dep)),
+               ("transmittance", fig.transmittance_figure(ds, dep_rows, dep))]
+    if record.get("floe_context"):
+        figures.append(("floes", fig.floe_context_figure(
+            pd.read_csv(record["floe_context"]), dep)))
+    written = []
+    for name, figure in figures:
+        target = tmp / "deployments" / dep / f"{name}.png"
+        target.parent.mkdir(parents=True, exist_ok=True)
+        fig.save_figure(figure, target)
+        written.append(str(target.relative_to(tmp)))
+    return written, dep, pd.read_csv(record["track"])
+
+
+def _each_deployment(budget_status: list[str], seasonal: pd.DataFrame, tmp: Path,
+                     processes: int) -> list:
+    """The deployments' figures in status order, drawn by ``processes`` worker processes
+    (matplotlib draws on one core; the per-deployment figures are independent)."""
+    paths = sorted(budget_status)
+    if processes <= 1 or len(paths) < 2:
+        return [_deployment_figures(p, seasonal, tmp) for p in paths]
+    import multiprocessing
+    from concurrent.futures import ProcessPoolExecutor
+
+    # fork: the workers inherit the imported modules instead of importing them again
+    with ProcessPoolExecutor(max_workers=min(processes, len(paths)),
+                             mp_context=multiprocessing.get_context("fork")) as pool:
+        return list(pool.map(_deployment_figures, paths, [seasonal] * len(paths),
+                             [tmp] * len(paths), chunksize=max(1, len(paths) // (4 * processes))))
+
+
 def run_figures(budget_status: list[str], seasonal_csv: str, climatology_csv: str,
                 out_dir: str, attribution_csv: str | None = None,
-                checks: dict | None = None) -> list[str]:
-    """Draw the per-deployment and basin figures into ``out_dir`` (replaced whole)."""
+                checks: dict | None = None, processes: int = 1) -> list[str]:
+    """Draw the per-deployment and basin figures into ``out_dir`` (replaced whole); the
+    per-deployment figures in ``processes`` worker processes."""
     seasonal = pd.read_csv(seasonal_csv)
     clim = pd.read_csv(climatology_csv)
     written: list[str] = []
     tracks, t_season, labels, lats = {}, {}, set(), []
     with atomic_path(Path(out_dir)) as tmp:
         tmp.mkdir(parents=True)
-        for path in sorted(budget_status):
-            record = read_status(path)
-            if not record.get("ok"):
+        for done in _each_deployment(budget_status, seasonal, tmp, processes):
+            if done is None:
                 continue
-            dep = record["deployment_id"]
-            ds = xr.open_zarr(record["budget_zarr"], consolidated=True).load()
-            scene_times = pd.read_csv(record["radar_fractions"], parse_dates=["time"])["time"] \
-                if record.get("radar_fractions") else []
-            dep_rows = seasonal[seasonal["deployment_id"] == dep]
-            figures = [("budget", fig.budget_figure(ds, dep)),
-                       ("openwater", fig.openwater_figure(ds, scene_times, dep)),
-                       ("transmittance", fig.transmittance_figure(ds, dep_rows, dep))]
-            if record.get("floe_context"):
-                figures.append(("floes", fig.floe_context_figure(
-                    pd.read_csv(record["floe_context"]), dep)))
-            for name, figure in figures:
-                target = tmp / "deployments" / dep / f"{name}.png"
-                target.parent.mkdir(parents=True, exist_ok=True)
-                fig.save_figure(figure, target)
-                written.append(str(target.relative_to(tmp)))
-            track = pd.read_csv(record["track"])
+            files, dep, track = done
+            written.extend(files)
             tracks[dep] = track
             lats.append(float(np.nanmean(track["latitude"])))
             t_season[dep], label = _season_value(seasonal, dep)

@@ -16,6 +16,7 @@ import time
 import pandas as pd
 
 from benchmarks._common import (
+    SYNTH_SECONDS,
     Result,
     archive_spec,
     archive_summary,
@@ -98,14 +99,18 @@ def run_memory(scratch, scale: str) -> Result:
     # process (the synthesizer itself needs several GB to render scenes that large)
     from benchmarks.scene_reads import peak_rss_of_one, write_tiled
 
-    big = scratch / "mask_20000.tif"
-    write_tiled(big, 20000)
+    big = _archives(scratch) / "archives" / "mask_20000.tif"
+    if not big.is_file():  # synthesized input: cached beside the archives, not counted
+        t0 = time.perf_counter()
+        big.parent.mkdir(parents=True, exist_ok=True)
+        write_tiled(big.with_suffix(".partial.tif"), 20000)
+        big.with_suffix(".partial.tif").rename(big)
+        SYNTH_SECONDS[0] += time.perf_counter() - t0
     rss_big = peak_rss_of_one(big)
     worst = max(worst, rss_big)
     notes.append(f"open + window + read + counts on a 20000 x 20000 px tiled GeoTIFF "
                  f"({big.stat().st_size / 1e6:.0f} MB on disk, 400 MB of pixels) in a fresh "
                  f"process: peak RSS {rss_big:.0f} MB")
-    big.unlink()
     if len(notes) == 2:
         notes.append("no many-deployment run in this scratch folder: run targets 5 or 7 "
                      "first (same --scratch) to add memory against deployment count")

@@ -97,7 +97,7 @@ def run_manifest(archive: str, results: str, config: dict, manifest_path: str,
     ``lock`` is the path of requirements.lock (its sha256 is recorded; a missing file
     records null).
     """
-    from floeheat.reproduce import lock_checksum
+    from floeheat.reproduce import JOB_KEYS, lock_checksum
 
     archive_p, results_p = Path(archive), Path(results)
     inputs = {p.relative_to(archive_p).as_posix(): sha256_file(p)
@@ -107,9 +107,11 @@ def run_manifest(archive: str, results: str, config: dict, manifest_path: str,
         "floeheat_version": __version__,
         "archive_format_version": ARCHIVE_FORMAT_VERSION,
         "output_format_version": OUTPUT_FORMAT_VERSION,
-        # The results folder is where the run was written, not a setting of it: leave it
-        # out so that the same run into two folders gives the same manifest.
-        "config": json.loads(json.dumps({k: v for k, v in config.items() if k != "results"},
+        # The results folder is where the run was written, and ``jobs`` how its work was
+        # cut into jobs, not settings of it: leave them out so that the same run into two
+        # folders, or on a laptop and a cluster, gives the same manifest.
+        "config": json.loads(json.dumps({k: v for k, v in config.items()
+                                         if k != "results" and k not in JOB_KEYS},
                                         default=str)),
         "software": software_versions(),
         "requirements_lock_sha256": lock_checksum(lock),

@@ -113,6 +113,36 @@ def run_scene_footprints(archive: str, scenes_csv: str, footprints_csv: str) -> 
     return table
 
 
+#: How far (in multiples of the largest ground radius, in the scene's projection) a
+#: position may lie from a footprint's bounding box before the scene is left out without
+#: computing its coverage. A map projection's scale factor would have to exceed this for
+#: such a scene to reach the circle (polar stereographic and UTM stay below 1.1 where sea
+#: ice is); the exact coverage decides for every scene within reach.
+_REACH_FACTOR = 4.0
+
+
+def _near_footprint(footprints: pd.DataFrame, lat: np.ndarray, lon: np.ndarray,
+                    radius_m: float) -> np.ndarray:
+    """Whether each position (one per footprint row) lies within reach of that scene's
+    bounding box: positions projected once per CRS, boxes from the affine corners."""
+    near = np.zeros(len(footprints), dtype=bool)
+    finite = np.isfinite(lat) & np.isfinite(lon)
+    a, b, c, d, e, f = (footprints[k].to_numpy(float) for k in "abcdef")
+    rows, cols = footprints["rows"].to_numpy(float), footprints["cols"].to_numpy(float)
+    cx = np.stack([c, c + a * cols, c + b * rows, c + a * cols + b * rows])
+    cy = np.stack([f, f + d * cols, f + e * rows, f + d * cols + e * rows])
+    reach = _REACH_FACTOR * float(radius_m)
+    for wkt in pd.unique(footprints["crs_wkt"]):
+        sel = (footprints["crs_wkt"].to_numpy() == wkt) & finite
+        if not sel.any():
+            continue
+        x, y = trk.to_working_crs(lat[sel], lon[sel], wkt)
+        dx = np.maximum(0.0, np.maximum(cx.min(0)[sel] - x, x - cx.max(0)[sel]))
+        dy = np.maximum(0.0, np.maximum(cy.min(0)[sel] - y, y - cy.max(0)[sel]))
+        near[sel] = np.hypot(dx, dy) <= reach
+    return near
+
+
 def match_track(footprints: pd.DataFrame, track: pd.DataFrame, deployment_id: str, *,
                 radii_m: list[float], coverage_threshold: float) -> pd.DataFrame:
     """Scenes (and radii) that serve one track: the scene time lies within the track and
@@ -127,8 +157,10 @@ def match_track(footprints: pd.DataFrame, track: pd.DataFrame, deployment_id: st
     rows = []
     crs_cache: dict[str, CRS] = {}
     lats, lons = positions_at(track, [_scene_time(t) for t in inside["time"]])
-    for fp, lat, lon in zip(inside.itertuples(index=False), lats, lons):
-        if not np.isfinite(lat):
+    near = _near_footprint(inside, lats, lons, radii[-1]) if coverage_threshold > 0 \
+        else np.isfinite(lats)
+    for fp, lat, lon, ok in zip(inside.itertuples(index=False), lats, lons, near):
+        if not ok:
             continue
         crs = crs_cache.setdefault(fp.crs_wkt, CRS.from_wkt(fp.crs_wkt))
         x, y = _projected(np.array([lat]), np.array([lon]), crs)

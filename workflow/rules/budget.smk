@@ -7,6 +7,7 @@ rule budget:
     input:
         insitu=part_record("insitu"),
         radar=part_record("radar"),
+        sheet=SHEET,
         shortwave=f"{RESULTS}/forcing/shortwave.zarr",
         concentration=f"{RESULTS}/forcing/concentration.zarr",
         shortwave_csv=get_shortwave_csv,

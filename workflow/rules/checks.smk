@@ -6,6 +6,7 @@
 rule bulkflux:
     input:
         insitu=all_part_records("insitu"),
+        sheet=SHEET,
     output:
         table=f"{RESULTS}/tables/bulkflux.csv",
         windows=f"{RESULTS}/tables/bulkflux_windows.csv",

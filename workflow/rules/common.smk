@@ -49,6 +49,11 @@ def existing(relpath):
     return [path] if os.path.exists(path) else []
 
 
+#: The validated sheet (checkpoint index): an input of every rule whose params or inputs
+#: are read from it, so that a job re-evaluated on a cluster node may read it too.
+SHEET = f"{RESULTS}/index/deployments.csv"
+
+
 # --- parts: consecutive deployments sharing one job of each per-deployment stage ----
 # (floeheat.steps.parts). Rules insitu, match_scenes, radar and budget run per part;
 # each writes every member's own status record and declares the part's record.

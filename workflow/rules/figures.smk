@@ -5,6 +5,7 @@
 rule figures:
     input:
         budgets=all_part_records("budget"),
+        sheet=SHEET,
         seasonal=f"{RESULTS}/tables/seasonal.csv",
         climatology=f"{RESULTS}/tables/climatology.csv",
         attribution=f"{RESULTS}/tables/attribution.csv",

@@ -6,6 +6,7 @@
 rule insitu:
     input:
         unpack(get_insitu_files),
+        sheet=SHEET,
     output:
         record=part_record("insitu"),
     params:

@@ -27,6 +27,7 @@ checkpoint match_scenes:
     input:
         footprints=f"{RESULTS}/index/footprints.csv",
         insitu=part_record("insitu"),
+        sheet=SHEET,
     output:
         matches=f"{RESULTS}/parts/match_scenes/{{part}}.csv",
     params:
@@ -48,6 +49,7 @@ rule radar:
     input:
         insitu=part_record("insitu"),
         matches=f"{RESULTS}/parts/match_scenes/{{part}}.csv",
+        sheet=SHEET,
         scenes=get_matched_scenes,
         classified=get_classified_batches,
     output:

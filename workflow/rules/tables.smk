@@ -6,6 +6,7 @@
 rule tables:
     input:
         budgets=all_part_records("budget"),
+        sheet=SHEET,
         rejected=f"{RESULTS}/index/rejected.csv",
         bathymetry=get_bathymetry_files,
     output:

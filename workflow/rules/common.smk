@@ -139,8 +139,7 @@ def get_forcing_files(wildcards):
 
 def get_shortwave_csv(wildcards):
     """Point shortwave files of one part's deployments (inputs)."""
-    return sorted({p for d in part_members(wildcards)
-                   for p in existing(deployment_row(d)["shortwave_file"])})
+    return sorted({p for paths in part_shortwave_csv(wildcards).values() for p in paths})
 
 
 def part_shortwave_csv(wildcards):

@@ -121,26 +121,31 @@ def run_scene_footprints(archive: str, scenes_csv: str, footprints_csv: str) -> 
 _REACH_FACTOR = 4.0
 
 
-def _near_footprint(footprints: pd.DataFrame, lat: np.ndarray, lon: np.ndarray,
-                    radius_m: float) -> np.ndarray:
-    """Whether each position (one per footprint row) lies within reach of that scene's
-    bounding box: positions projected once per CRS, boxes from the affine corners."""
-    near = np.zeros(len(footprints), dtype=bool)
+def _in_scene_crs(footprints: pd.DataFrame, lat: np.ndarray,
+                  lon: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Each position (one per footprint row) in that scene's CRS: one projection per CRS."""
+    x = np.full(len(footprints), np.nan)
+    y = np.full(len(footprints), np.nan)
     finite = np.isfinite(lat) & np.isfinite(lon)
+    for wkt in pd.unique(footprints["crs_wkt"]):
+        sel = (footprints["crs_wkt"].to_numpy() == wkt) & finite
+        if sel.any():
+            x[sel], y[sel] = trk.to_working_crs(lat[sel], lon[sel], wkt)
+    return x, y
+
+
+def _near_footprint(footprints: pd.DataFrame, x: np.ndarray, y: np.ndarray,
+                    radius_m: float) -> np.ndarray:
+    """Whether each position (in its scene's CRS) lies within reach of that scene's
+    bounding box (from the affine corners); False for NaN positions."""
     a, b, c, d, e, f = (footprints[k].to_numpy(float) for k in "abcdef")
     rows, cols = footprints["rows"].to_numpy(float), footprints["cols"].to_numpy(float)
     cx = np.stack([c, c + a * cols, c + b * rows, c + a * cols + b * rows])
     cy = np.stack([f, f + d * cols, f + e * rows, f + d * cols + e * rows])
-    reach = _REACH_FACTOR * float(radius_m)
-    for wkt in pd.unique(footprints["crs_wkt"]):
-        sel = (footprints["crs_wkt"].to_numpy() == wkt) & finite
-        if not sel.any():
-            continue
-        x, y = trk.to_working_crs(lat[sel], lon[sel], wkt)
-        dx = np.maximum(0.0, np.maximum(cx.min(0)[sel] - x, x - cx.max(0)[sel]))
-        dy = np.maximum(0.0, np.maximum(cy.min(0)[sel] - y, y - cy.max(0)[sel]))
-        near[sel] = np.hypot(dx, dy) <= reach
-    return near
+    dx = np.maximum(0.0, np.maximum(cx.min(0) - x, x - cx.max(0)))
+    dy = np.maximum(0.0, np.maximum(cy.min(0) - y, y - cy.max(0)))
+    with np.errstate(invalid="ignore"):
+        return np.hypot(dx, dy) <= _REACH_FACTOR * float(radius_m)
 
 
 def match_track(footprints: pd.DataFrame, track: pd.DataFrame, deployment_id: str, *,
@@ -157,16 +162,17 @@ def match_track(footprints: pd.DataFrame, track: pd.DataFrame, deployment_id: st
     rows = []
     crs_cache: dict[str, CRS] = {}
     lats, lons = positions_at(track, [_scene_time(t) for t in inside["time"]])
-    near = _near_footprint(inside, lats, lons, radii[-1]) if coverage_threshold > 0 \
-        else np.isfinite(lats)
-    for fp, lat, lon, ok in zip(inside.itertuples(index=False), lats, lons, near):
+    xs, ys = _in_scene_crs(inside, lats, lons)
+    near = _near_footprint(inside, xs, ys, radii[-1]) if coverage_threshold > 0 \
+        else np.isfinite(xs)
+    for fp, lat, lon, x, y, ok in zip(inside.itertuples(index=False), lats, lons, xs, ys,
+                                      near):
         if not ok:
             continue
         crs = crs_cache.setdefault(fp.crs_wkt, CRS.from_wkt(fp.crs_wkt))
-        x, y = _projected(np.array([lat]), np.array([lon]), crs)
         radii_proj = openwater.projected_radius(radii, crs, lon, lat)
         transform = Affine(fp.a, fp.b, fp.c, fp.d, fp.e, fp.f)
-        cover = openwater.scene_coverage(transform, (int(fp.rows), int(fp.cols)), x[0], y[0],
+        cover = openwater.scene_coverage(transform, (int(fp.rows), int(fp.cols)), x, y,
                                          radii_proj)
         for r, c in zip(radii, np.atleast_1d(cover)):
             if c >= coverage_threshold:

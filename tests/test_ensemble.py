@@ -42,16 +42,19 @@ CENTRAL = {"albedo_ow": C.ALBEDO_OPEN_WATER, "rho_i_kg_m3": C.RHO_ICE_KG_M3,
            "sensor_spacing_m": 0.02}
 
 
-def _budget(f=0.1, sens=True):
-    """A hand-built deterministic budget: constant sunlight and open water, storage
-    growing linearly with its z2 sensitivity, the bottom melting 0.2 m, F_c 3 W m-2."""
+def _budget(f=0.1, sens=True, sources=("radar",), radii=(4000.0,), **kwargs):
+    """A hand-built deterministic budget: constant sunlight and open water (``f`` times
+    1, 1/2, 1/3 ... by source), storage growing linearly with its z2 sensitivity, the
+    bottom melting 0.2 m, F_c 3 W m-2."""
     n = EDGES.size - 1
     sw = xr.Dataset({"sw_down": ("time", np.full(n, 250.0)),
                      "time_bnds": (("time", "nv"), np.stack([EDGES[:-1], EDGES[1:]], 1))},
                     coords={"time": EDGES[1:]})
-    fo = xr.DataArray(np.full((2, 1, 1), f), dims=("time", "source", "radius"),
-                      coords={"time": EDGES[[0, -1]], "source": ["radar"],
-                              "radius": [4000.0]})
+    per_source = f / np.arange(1.0, len(sources) + 1)
+    fo = xr.DataArray(np.broadcast_to(per_source[None, :, None], (2, len(sources), len(radii))),
+                      dims=("time", "source", "radius"),
+                      coords={"time": EDGES[[0, -1]], "source": list(sources),
+                              "radius": list(radii)})
     t = EDGES[::6]
     s = np.linspace(0.0, 1.0, t.size)
     storage = xr.Dataset({"heat_content": ("profile", 20e6 * s)}, coords={"time": ("profile", t)})
@@ -60,7 +63,7 @@ def _budget(f=0.1, sens=True):
         storage["heat_content_z2_hi"] = ("profile", 23e6 * s)
     ice = xr.Dataset({"z_b": ("time", 1.8 - 0.2 * s), "f_c": ("time", np.full(t.size, 3.0))},
                      coords={"time": t})
-    return assemble_budget(sw, EDGES[0], EDGES[-1], f_ow=fo, storage=storage, ice=ice)
+    return assemble_budget(sw, EDGES[0], EDGES[-1], f_ow=fo, storage=storage, ice=ice, **kwargs)
 
 
 def _only(name, members=64, spread=None):
@@ -203,6 +206,59 @@ def test_conductivity_and_melt_energy_scale_their_terms():
     qw = 0.9 * (er[:, None, None] * ds.q_b_season.values - kr[:, None, None] * ds.q_c_season.values)
     expect = -(ds.q_ow_season.values - ds.q_st_season.values - qw) / ds.sw_in_season.values
     np.testing.assert_allclose(m.t_season.values, expect, rtol=1e-9)
+
+
+def _hourly_members(ds, d, k_ratio, f_radar):
+    """Reference: each member's budget summed hour by hour, one member at a time (the
+    factor definitions of the floeheat.ensemble docstring written out plainly)."""
+    te = ds.time.values.astype("datetime64[ns]").astype(np.int64) * 1e-9
+    dt = np.diff(te)
+    first = np.searchsorted(ds.time.values[:-1], ds.window_start.values)
+    weighted = str(ds.attrs["weight_by_ice_fraction"]) == "True"
+    season, windows = [], []
+    for m in range(d.sizes["member"]):
+        fm = ds.f_ow.values[1:].copy()
+        fm[:, 0, :] = f_radar[m]
+        sw = d.shortwave_bias.values[m] * ds.sw_down.values[1:]
+        q_ow = (1 - d.albedo_ow.values[m]) * fm * (sw * dt * 1e-6)[:, None, None]
+        den = (1 - fm) * (sw * dt * 1e-6)[:, None, None]
+        e = (d.rho_i_kg_m3.values[m] / C.RHO_ICE_KG_M3
+             * d.latent_heat_J_kg.values[m] / C.LATENT_HEAT_FUSION_J_KG)
+        shift = d.pick_start_m.values[m] - d.pick_end_m.values[m]
+        q_b = e * (np.diff(ds.q_b.values) + C.RHO_ICE_KG_M3 * C.LATENT_HEAT_FUSION_J_KG
+                   * 1e-6 * shift * dt / (te[-1] - te[0]))
+        q_c = k_ratio[m] * np.diff(ds.q_c.values)
+        q_w = ((1 - fm) if weighted else 1.0) * (q_b - q_c)[:, None, None]
+        bound = d.storage_bound.values[m]
+        other = ds.q_st_z2_hi.values if bound > 0 else ds.q_st_z2_lo.values
+        q_st = ds.q_st.values + abs(bound) * (other - ds.q_st.values)
+        r = q_ow - np.diff(q_st)[:, None, None] - q_w
+        season.append(-(q_ow.sum(0) - q_st[-1] - q_w.sum(0)) / den.sum(0))
+        windows.append(-np.add.reduceat(r, first) / np.add.reduceat(den, first))
+    return np.array(season), np.array(windows)
+
+
+@pytest.mark.parametrize("weighted", [True, False])
+def test_members_match_an_hour_by_hour_computation(weighted):
+    # every factor at once, a conductivity ratio varying in time (salinity form), the
+    # radar f_ow perturbed per member beside a second source, a gap in the storage
+    ds = _budget(sources=("radar", "microwave"), radii=(4000.0, 8000.0),
+                 weight_by_ice_fraction=weighted)
+    n = ds.sizes["time"] - 1
+    ds["q_st"] = ds.q_st.where(np.arange(n + 1) != 100)
+    d = E.draw_factors(FACTORS, CENTRAL, 12, 4, "B1")
+    rng = np.random.default_rng(1)
+    f_radar = rng.uniform(0.0, 0.3, (12, n, 2))
+    f_radar[3, 40:60, 1] = np.nan
+    t_band = np.linspace(-8.0, -2.0, n)
+    kr = E.conduction_ratio(d.k_ice_W_m_K.values, C.K_ICE_W_M_K, "salinity",
+                            d.bulk_salinity.values, 4.0, t_band)
+    m = E.budget_members(ds, d, k_ratio=kr, chunk_members=5,
+                         f_ow_members=lambda sl, only: {"radar": f_radar[sl]})
+    season, windows = _hourly_members(ds, d, kr, f_radar)
+    np.testing.assert_allclose(m.t_season.values, season, rtol=1e-10)
+    np.testing.assert_allclose(m.window_t_ice.values, windows, rtol=1e-10, atol=1e-14)
+    assert np.isnan(m.window_t_ice.values).any() and np.isfinite(m.window_t_ice.values).any()
 
 
 def test_chunking_does_not_change_the_members():

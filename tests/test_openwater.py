@@ -234,3 +234,35 @@ def test_time_series_duplicates_nan_and_radii():
     assert np.isnan(out.values[:, 1]).all() and (out.flag.values[:, 1] == 4).all()
     with pytest.raises(ValueError):
         O.radar_time_series(scenes, f[:, :1], _t(0), [2000.0, 8000.0])
+
+
+def test_members_interpolate_as_each_alone():
+    # members sharing their counting scenes are interpolated together; each member's
+    # series and flags must be what radar_time_series gives that member on its own
+    rng = np.random.default_rng(7)
+    scenes = _t(0, 0, 1.5, 3, 9, 10, 17)
+    targets = _t(*np.arange(-8.0, 26.0, 0.25))
+    f = rng.uniform(0.0, 0.5, (9, scenes.size, 2))
+    f[::2, 3, 0] = np.nan          # two patterns of counting scenes at the first radius
+    f[4, :, 1] = np.nan            # a member without any scene at the second
+    gap = pd.Timedelta(days=5)
+    many, flags = O.radar_series_members(scenes, f, targets, [2000.0, 8000.0], gap)
+    for m in range(f.shape[0]):
+        one = O.radar_time_series(scenes, f[m], targets, [2000.0, 8000.0], max_gap=gap)
+        np.testing.assert_array_equal(many[m], one.values)
+        np.testing.assert_array_equal(flags[m], one.flag.values)
+    assert (flags[4, :, 1] == 4).all() and np.isfinite(many).any()
+
+
+def test_per_scene_arrays_has_one_row_per_scene():
+    # the long table of 40 scenes x 3 radii (radii in any order, one missing) gives 40
+    # rows: never one row per combination of the distinct times and scene IDs
+    times = pd.Timestamp("2020-06-01") + pd.to_timedelta(np.arange(40) * 7, unit="h")
+    long = pd.DataFrame({"time": np.repeat(times, 3), "scene_id": np.repeat(
+        [f"s{i:02d}" for i in range(40)], 3), "radius_m": np.tile([8e3, 2e3, 4e3], 40),
+        "n_valid": np.arange(120.0)}).drop(index=[5])
+    t, wide = O.per_scene_arrays(long.sample(frac=1.0, random_state=1), ["n_valid"],
+                                 [2e3, 4e3, 8e3])
+    assert wide["n_valid"].shape == (40, 3) and t.tolist() == list(times.values)
+    assert wide["n_valid"][0].tolist() == [1.0, 2.0, 0.0]
+    assert np.isnan(wide["n_valid"][1, 1])

@@ -258,7 +258,7 @@ def radar_member_fractions(scene_time, n_water, n_valid, coverage, radius_m, tar
     >>> out[:, 0, 0].round(3).tolist()
     [0.1, 0.2]
     """
-    from floeheat.openwater import MAX_SCENE_GAP, radar_series_arrays
+    from floeheat.openwater import MAX_SCENE_GAP, radar_series_members
 
     nw = np.asarray(n_water, float)
     nv = np.asarray(n_valid, float)
@@ -266,24 +266,17 @@ def radar_member_fractions(scene_time, n_water, n_valid, coverage, radius_m, tar
     rad = np.asarray(radius_m, float)
     with np.errstate(divide="ignore", invalid="ignore"):
         f = np.where(nv > 0, nw / nv, np.nan)
-    sd = sampling_sd(f, cov, rad[None, :], correlation_length_m) if noise is not None else None
     thr = np.asarray(thresholds, float)
+    keep = (nv > 0)[None] & (cov[None] >= thr[:, None, None])  # (member, scene, radius)
+    if noise is None:
+        values = np.where(keep, f[None], np.nan)
+    else:
+        sd = sampling_sd(f, cov, rad[None, :], correlation_length_m)
+        fm = np.clip(f[None] + np.asarray(noise, float)[:, :, None] * sd[None], 0.0, 1.0)
+        values = np.where(keep, fm, np.nan)
     gap = MAX_SCENE_GAP if max_gap is None else max_gap
-    out = np.full((thr.size, np.size(target_time), rad.size), np.nan)
-    cache: dict[bytes, np.ndarray] = {}
-    for m in range(thr.size):
-        keep = (nv > 0) & (cov >= thr[m])
-        if noise is None:
-            key = keep.tobytes()
-            if key not in cache:
-                cache[key] = radar_series_arrays(scene_time, np.where(keep, f, np.nan),
-                                                 target_time, rad, gap)[0]
-            out[m] = cache[key]
-            continue
-        fm = np.clip(f + np.asarray(noise)[m][:, None] * sd, 0.0, 1.0)
-        out[m] = radar_series_arrays(scene_time, np.where(keep, fm, np.nan), target_time,
-                                     rad, gap)[0]
-    return out
+    # members counting the same scenes share one interpolation
+    return radar_series_members(scene_time, values, target_time, rad, gap)[0]
 
 
 def conduction_ratio(k_member_W_m_K, k_central_W_m_K: float, conductivity: str = "constant",
@@ -338,52 +331,99 @@ def _window_starts(budget: xr.Dataset) -> np.ndarray:
 
 
 class _Static:
-    """The central budget's series, as plain arrays for the member kernel."""
+    """The central budget's series, as plain arrays for the member kernel, with the
+    window and season sums of every term that does not depend on a member."""
 
     def __init__(self, budget: xr.Dataset, melt_energy_J_m3: float):
         te = budget["time"].values.astype("datetime64[ns]").astype(np.int64) * _NS
         self.dt = np.diff(te)
         self.total = float(te[-1] - te[0])
-        self.sw = np.asarray(budget["sw_down"].values[1:], float)
-        self.fm = np.asarray(budget["f_ow"].values[1:], float)  # (n, s, r)
+        sw = np.asarray(budget["sw_down"].values[1:], float)
+        self.swdt = sw * self.dt * _MJ  # (n,) MJ m-2 for a shortwave bias of 1
         nan = np.full(te.size, np.nan)
-        self.q_st = np.asarray(budget["q_st"].values, float) if "q_st" in budget else nan
-        self.lo = np.asarray(budget["q_st_z2_lo"].values, float) \
-            if "q_st_z2_lo" in budget else self.q_st
-        self.hi = np.asarray(budget["q_st_z2_hi"].values, float) \
-            if "q_st_z2_hi" in budget else self.q_st
+        q_st = np.asarray(budget["q_st"].values, float) if "q_st" in budget else nan
+        lo = np.asarray(budget["q_st_z2_lo"].values, float) \
+            if "q_st_z2_lo" in budget else q_st
+        hi = np.asarray(budget["q_st_z2_hi"].values, float) \
+            if "q_st_z2_hi" in budget else q_st
         self.d_b = np.diff(budget["q_b"].values) if "q_b" in budget else nan[1:]
         self.d_c = np.diff(budget["q_c"].values) if "q_c" in budget else nan[1:]
         self.weight = str(budget.attrs.get("weight_by_ice_fraction", "True")) == "True"
         self.albedo = float(budget.attrs.get("albedo_ow", C.ALBEDO_OPEN_WATER))
         self.energy_MJ_m3 = float(melt_energy_J_m3) * _MJ
         self.first = _window_starts(budget)
+        # storage is linear in the bound: Q_st = q + up (lo - q) + down (hi - q)
+        to_lo, to_hi = lo - q_st, hi - q_st
+        self.q_end = np.array([q_st[-1], to_lo[-1], to_hi[-1]])
+        d_q = np.stack([np.diff(q_st), np.diff(to_lo), np.diff(to_hi)], axis=1)  # (n, 3)
+        self.q_window = np.add.reduceat(d_q, self.first, axis=0)  # (window, 3)
+        self.fm = np.asarray(budget["f_ow"].values[1:], float)  # (n, source, radius)
+        self.central = self.sums(self.fm, axis=0)
+
+    def sums(self, fm: np.ndarray, axis: int) -> dict:
+        """Window and season sums of the f_ow-weighted terms of f_ow with the budget's
+        intervals on ``axis``: per term, (the window sums, that axis replaced by the
+        window; the season sums, that axis summed)."""
+        shape = [1] * fm.ndim
+        shape[axis] = self.dt.size
+
+        def series(x):
+            return np.reshape(x, shape)
+
+        w = (1.0 - fm) if self.weight else np.ones_like(fm)
+        terms = {"ow": fm * series(self.swdt), "den": (1.0 - fm) * series(self.swdt),
+                 "b": w * series(self.d_b), "dt": w * series(self.dt),
+                 "c": w * series(self.d_c)}
+        return {k: (np.add.reduceat(v, self.first, axis=axis), np.sum(v, axis=axis))
+                for k, v in terms.items()}
 
 
-def _kernel(st: _Static, fm, albedo, bias, e_ratio, k_ratio, pick_shift_m, bound):
-    """Season and window values for a block of members (leading axis)."""
-    ex = (slice(None), None, None, None)
-    swdt = (bias[:, None] * st.sw[None, :] * st.dt[None, :]) * _MJ  # (M, n) MJ m-2
-    d_ow = (1.0 - albedo)[ex] * fm * swdt[:, :, None, None]
-    k_ratio = np.asarray(k_ratio)
-    k_ratio = k_ratio[:, None] if k_ratio.ndim == 1 else k_ratio
-    d_b = e_ratio[:, None] * (st.d_b[None, :] + st.energy_MJ_m3 * pick_shift_m[:, None]
-                              * st.dt[None, :] / st.total)
-    d_c = k_ratio * st.d_c[None, :]
-    w = (1.0 - fm) if st.weight else np.ones_like(fm)
-    d_w = w * (d_b - d_c)[:, :, None, None]
-    den = (1.0 - fm) * swdt[:, :, None, None]
-    up, down = np.maximum(-bound, 0.0)[:, None], np.maximum(bound, 0.0)[:, None]
-    q_st = st.q_st[None, :] + up * (st.lo - st.q_st)[None, :] + down * (st.hi - st.q_st)[None, :]
-    d_st = np.diff(q_st, axis=1)[:, :, None, None]
-    d_r = d_ow - (d_st + d_w)
-    w_r = np.add.reduceat(d_r, st.first, axis=1)
-    w_den = np.add.reduceat(den, st.first, axis=1)
-    resid = np.sum(d_ow, axis=1) - q_st[:, -1][:, None, None] - np.sum(d_w, axis=1)
-    s_den = np.sum(den, axis=1)
-    with np.errstate(all="ignore"):
-        t_season = -resid / s_den
-        w_t = -w_r / w_den
+def _kernel(st: _Static, per_source: Mapping[int, dict], albedo, bias, e_ratio, k_ratio,
+            pick_shift_m, bound, weighted_c=None):
+    """Season and window values for a block of members (leading axis).
+
+    Every term is the product of a member's factors and a sum over the window (or the
+    season) of a series that does not depend on the member, so the members never
+    touch the hourly series. ``per_source`` holds the member sums of the sources whose
+    f_ow the members perturb (index on the source axis -> :meth:`_Static.sums` of
+    (member, n_time, radius)); ``weighted_c`` the sums of the weighted conduction with
+    a time-varying conductivity ratio.
+    """
+    size = albedo.size
+
+    def full(key, which):
+        base = np.broadcast_to(st.central[key][which], (size,) + st.central[key][which].shape)
+        if not per_source:
+            return base
+        out = base.copy()
+        for i, sums in per_source.items():
+            out[..., i, :] = sums[key][which]
+        return out
+
+    def m(x, nd):
+        return np.asarray(x, float).reshape((size,) + (1,) * nd)
+
+    oma, b, e = 1.0 - np.asarray(albedo, float), np.asarray(bias, float), e_ratio
+    pick = st.energy_MJ_m3 * np.asarray(pick_shift_m, float) / st.total
+    up, down = np.maximum(-bound, 0.0), np.maximum(bound, 0.0)
+    coef = np.stack([np.ones(size), up, down], axis=1)  # (M, 3) on (q, lo - q, hi - q)
+    out = []
+    for which, nd in ((0, 3), (1, 2)):  # windows, then the season
+        ow, den = full("ow", which), full("den", which)
+        w_b, w_dt = full("b", which), full("dt", which)
+        if weighted_c is not None:
+            w_c = weighted_c[which]
+        else:
+            w_c = m(np.asarray(k_ratio, float).reshape(size), nd) * full("c", which)
+        d_w = m(e, nd) * (w_b + m(pick, nd) * w_dt) - w_c
+        if which == 0:
+            d_st = (coef @ st.q_window.T)[:, :, None, None]  # (M, window, 1, 1)
+        else:
+            d_st = (coef @ st.q_end)[:, None, None]
+        resid = m(oma * b, nd) * ow - d_st - d_w
+        with np.errstate(all="ignore"):
+            out.append((resid, -resid / (m(b, nd) * den)))
+    (_, w_t), (resid, t_season) = out
     return t_season, resid, w_t
 
 
@@ -471,14 +511,20 @@ def budget_members(
         pick = (d["pick_start_m"].values - d["pick_end_m"].values) \
             if on("ice_bottom_pick") else np.zeros(size)
         bound = d["storage_bound"].values if on("storage_bound") else np.zeros(size)
-        fm = np.broadcast_to(st.fm[None], (size,) + st.fm.shape)
+        per = {}
         if f_ow_members is not None and (on("coverage_threshold") or on("f_ow_sampling")):
-            per = f_ow_members(sl, only)
-            if per:
-                fm = fm.copy()
-                for s, arr in per.items():
-                    fm[:, :, sources.index(s), :] = arr
-        return _kernel(st, fm, albedo, bias, e_ratio, kr, pick, bound)
+            per = {sources.index(s): np.asarray(arr, float)
+                   for s, arr in f_ow_members(sl, only).items()}
+        per_source = {i: st.sums(arr, axis=1) for i, arr in per.items()}
+        weighted_c = None
+        if np.ndim(kr) == 2:  # a conductivity ratio that varies in time (salinity form)
+            fm = np.repeat(st.fm[None], size, axis=0)
+            for i, arr in per.items():
+                fm[:, :, i, :] = arr
+            w = (1.0 - fm) if st.weight else np.ones_like(fm)
+            wc = w * (np.asarray(kr, float) * st.d_c[None, :])[:, :, None, None]
+            weighted_c = (np.add.reduceat(wc, st.first, axis=1), np.sum(wc, axis=1))
+        return _kernel(st, per_source, albedo, bias, e_ratio, kr, pick, bound, weighted_c)
 
     starts = range(0, n_members, max(1, int(chunk_members)))
     blocks = [slice(a, min(a + int(chunk_members), n_members)) for a in starts]

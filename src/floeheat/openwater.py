@@ -39,6 +39,8 @@ __all__ = [
     "circle_fractions",
     "radar_time_series",
     "radar_series_arrays",
+    "radar_series_members",
+    "per_scene_arrays",
     "FLAG_MEANINGS",
     "MAX_SCENE_GAP",
 ]
@@ -324,53 +326,114 @@ def _ns_int(t) -> np.ndarray:
     return t.astype(np.int64)
 
 
-def radar_series_arrays(scene_time, f_ow, target_time, radius_m,
-                        max_gap=MAX_SCENE_GAP) -> tuple[np.ndarray, np.ndarray]:
-    """The numbers of :func:`radar_time_series`: ``(f_ow, flag)``, each (n_time,
-    n_radius), as plain arrays (for loops over ensemble members)."""
+def per_scene_arrays(table: pd.DataFrame, columns, radius_m) -> tuple[np.ndarray, dict]:
+    """The radar stage's long per-scene table as arrays: ``(time (n_scene,), {column:
+    array (n_scene, n_radius)})``, one row per (time, scene_id) of the table in that
+    order, radii in the order of ``radius_m`` (NaN where a radius is missing).
+
+    Examples
+    --------
+    >>> t = pd.DataFrame({"time": pd.to_datetime(["2020-06-02", "2020-06-01",
+    ...                                           "2020-06-01"]),
+    ...                   "scene_id": ["b", "a", "a"], "radius_m": [2e3, 2e3, 4e3],
+    ...                   "f_ow": [0.2, 0.1, 0.3]})
+    >>> times, wide = per_scene_arrays(t, ["f_ow"], [2e3, 4e3])
+    >>> wide["f_ow"].tolist()
+    [[0.1, 0.3], [0.2, nan]]
+    """
+    radii = [float(r) for r in radius_m]
+    keyed = table.groupby(["time", "scene_id", "radius_m"], sort=True)[list(columns)].first()
+    wide = {k: keyed[k].unstack("radius_m").reindex(columns=radii) for k in columns}
+    index = next(iter(wide.values())).index
+    times = pd.DatetimeIndex(index.get_level_values("time")).tz_localize(None).values
+    return times, {k: v.to_numpy(float) for k, v in wide.items()}
+
+
+def _series_one_pattern(ts_all: np.ndarray, ok: np.ndarray, values: np.ndarray,
+                        td: np.ndarray, gap: int) -> tuple[np.ndarray, np.ndarray]:
+    """Interpolate the rows of ``values`` (n_row, n_scene), all counting the same scenes
+    ``ok``, at the times ``td``: ``(f_ow (n_row, n_time), flag (n_time,))``."""
+    rows = values.shape[0]
+    v = np.full((rows, td.size), np.nan)
+    fl = np.zeros(td.size, dtype=np.int8)
+    if not ok.any():
+        fl[:] = 4
+        return v, fl
+    xs, inv = np.unique(ts_all[ok], return_inverse=True)  # same-time scenes averaged
+    inv = inv.ravel()
+    # one bincount over all rows: each row's bins sum in scene order, as row by row
+    bins = (inv[None, :] + xs.size * np.arange(rows)[:, None]).ravel()
+    sums = np.bincount(bins, weights=values[:, ok].ravel(), minlength=rows * xs.size)
+    ys = sums.reshape(rows, xs.size) / np.bincount(inv)[None, :]
+    i = np.searchsorted(xs, td, side="right") - 1
+    exact = (i >= 0) & (xs[np.clip(i, 0, None)] == td)
+    v[:, exact] = ys[:, i[exact]]
+    mid = ~exact & (i >= 0) & (i < xs.size - 1)
+    im = i[mid]
+    x0, x1 = xs[im], xs[np.minimum(im + 1, xs.size - 1)]
+    w = (td[mid] - x0).astype(float) / np.maximum(x1 - x0, 1).astype(float)
+    vm = ys[:, im] * (1.0 - w) + ys[:, np.minimum(im + 1, xs.size - 1)] * w
+    long_gap = (x1 - x0) > gap
+    v[:, mid] = np.where(long_gap, np.nan, vm)
+    fl[mid] = np.where(long_gap, 1, 0)
+    before = i < 0
+    hold_b = before & (xs[0] - td <= gap)
+    v[:, hold_b] = ys[:, :1]
+    fl[before & ~hold_b] = 2
+    after = ~exact & (i == xs.size - 1)
+    hold_a = after & (td - xs[-1] <= gap)
+    v[:, hold_a] = ys[:, -1:]
+    fl[after & ~hold_a] = 3
+    return v, fl
+
+
+def radar_series_members(scene_time, f_ow, target_time, radius_m,
+                         max_gap=MAX_SCENE_GAP) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`radar_time_series` for many sets of per-scene values at once (ensemble
+    members): ``f_ow`` (n_member, n_scene, n_radius) gives ``(f_ow, flag)``, each
+    (n_member, n_time, n_radius), as plain arrays.
+
+    Members that count the same scenes at a radius share one interpolation; each
+    member's numbers are those :func:`radar_series_arrays` gives it alone.
+    """
     ts_all = _ns_int(scene_time).ravel()
     fv = np.asarray(f_ow, dtype=float)
-    if fv.ndim == 1:
-        fv = fv[:, None]
     rad = np.atleast_1d(np.asarray(radius_m, dtype=float))
-    if fv.shape != (ts_all.size, rad.size):
-        raise ValueError(f"f_ow must have shape (n_scene, n_radius) = "
-                         f"{(ts_all.size, rad.size)}, got {fv.shape}")
+    if fv.ndim != 3 or fv.shape[1:] != (ts_all.size, rad.size):
+        raise ValueError(f"f_ow must have shape (n_member, n_scene, n_radius) = "
+                         f"(n, {ts_all.size}, {rad.size}), got {fv.shape}")
     td = np.asarray(getattr(target_time, "values", target_time),
                     dtype="datetime64[ns]").ravel().astype(np.int64)
     gap = int(pd.Timedelta(max_gap).value)
-    out = np.full((td.size, rad.size), np.nan)
-    flag = np.zeros((td.size, rad.size), dtype=np.int8)
+    out = np.full((fv.shape[0], td.size, rad.size), np.nan)
+    flag = np.zeros((fv.shape[0], td.size, rad.size), dtype=np.int8)
     for k in range(rad.size):
-        ok = np.isfinite(fv[:, k])
-        if not ok.any():
-            flag[:, k] = 4
-            continue
-        xs, inv = np.unique(ts_all[ok], return_inverse=True)  # same-time scenes averaged
-        ys = np.bincount(inv, weights=fv[ok, k]) / np.bincount(inv)
-        i = np.searchsorted(xs, td, side="right") - 1
-        exact = (i >= 0) & (xs[np.clip(i, 0, None)] == td)
-        v = np.full(td.size, np.nan)
-        fl = np.zeros(td.size, dtype=np.int8)
-        v[exact] = ys[i[exact]]
-        mid = ~exact & (i >= 0) & (i < xs.size - 1)
-        im = i[mid]
-        x0, x1 = xs[im], xs[np.minimum(im + 1, xs.size - 1)]
-        w = (td[mid] - x0).astype(float) / np.maximum(x1 - x0, 1).astype(float)
-        vm = ys[im] * (1.0 - w) + ys[np.minimum(im + 1, xs.size - 1)] * w
-        long_gap = (x1 - x0) > gap
-        v[mid] = np.where(long_gap, np.nan, vm)
-        fl[mid] = np.where(long_gap, 1, 0)
-        before = i < 0
-        hold_b = before & (xs[0] - td <= gap)
-        v[hold_b] = ys[0]
-        fl[before & ~hold_b] = 2
-        after = ~exact & (i == xs.size - 1)
-        hold_a = after & (td - xs[-1] <= gap)
-        v[hold_a] = ys[-1]
-        fl[after & ~hold_a] = 3
-        out[:, k], flag[:, k] = v, fl
+        counts = np.isfinite(fv[:, :, k])
+        groups: dict[bytes, list[int]] = {}
+        for m, row in enumerate(counts):
+            groups.setdefault(row.tobytes(), []).append(m)
+        for members in groups.values():
+            rows = np.asarray(members)
+            v, fl = _series_one_pattern(ts_all, counts[rows[0]], fv[rows, :, k], td, gap)
+            out[rows, :, k] = v
+            flag[rows, :, k] = fl[None, :]
     return out, flag
+
+
+def radar_series_arrays(scene_time, f_ow, target_time, radius_m,
+                        max_gap=MAX_SCENE_GAP) -> tuple[np.ndarray, np.ndarray]:
+    """The numbers of :func:`radar_time_series`: ``(f_ow, flag)``, each (n_time,
+    n_radius), as plain arrays."""
+    fv = np.asarray(f_ow, dtype=float)
+    if fv.ndim == 1:
+        fv = fv[:, None]
+    n_scene = np.size(getattr(scene_time, "values", scene_time))
+    n_radius = np.atleast_1d(np.asarray(radius_m, dtype=float)).size
+    if fv.shape != (n_scene, n_radius):
+        raise ValueError(f"f_ow must have shape (n_scene, n_radius) = "
+                         f"{(n_scene, n_radius)}, got {fv.shape}")
+    out, flag = radar_series_members(scene_time, fv[None], target_time, radius_m, max_gap)
+    return out[0], flag[0]
 
 
 def radar_time_series(scene_time, f_ow, target_time, radius_m,

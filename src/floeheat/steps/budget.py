@@ -22,7 +22,7 @@ from floeheat.budget import assemble_budget, seasonal_table, window_table
 from floeheat.climatology import WINDOW_COLUMNS
 from floeheat.io.gridded import read_shortwave_csv
 from floeheat.microwave import fraction_at_buoys, interpolate_daily
-from floeheat.openwater import radar_time_series
+from floeheat.openwater import per_scene_arrays, radar_time_series
 from floeheat.shortwave import sample_at_tracks
 from floeheat.steps.ensemble import budget_ensemble, write_window_members
 from floeheat.steps.scenes import position_at, read_track
@@ -72,10 +72,8 @@ def radar_fraction_series(fractions_csv: str, target_time, radii_m, max_gap_days
     if table.empty:
         return None
     table["value"] = table["f_ow"].where(table["accepted"].astype(bool))
-    wide = table.pivot_table(index=["time", "scene_id"], columns="radius_m", values="value",
-                             dropna=False, aggfunc="first").reindex(columns=sorted(radii_m))
-    times = wide.index.get_level_values("time").tz_localize(None).values
-    return radar_time_series(times, wide.to_numpy(float), target_time, sorted(radii_m),
+    times, wide = per_scene_arrays(table, ["value"], sorted(radii_m))
+    return radar_time_series(times, wide["value"], target_time, sorted(radii_m),
                              max_gap=pd.Timedelta(days=max_gap_days))
 
 

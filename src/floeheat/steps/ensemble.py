@@ -19,6 +19,7 @@ import xarray as xr
 
 from floeheat import constants as C
 from floeheat import ensemble as E
+from floeheat.openwater import per_scene_arrays
 from floeheat.steps.status import atomic_path, read_status
 
 __all__ = ["budget_ensemble", "write_window_members", "read_window_members",
@@ -42,11 +43,9 @@ def _radar_scenes(fractions_csv, radii_m) -> tuple | None:
     if table.empty:
         return None
     radii = sorted(float(r) for r in radii_m)
-    wide = {k: table.pivot_table(index=["time", "scene_id"], columns="radius_m", values=k,
-                                 dropna=False, aggfunc="first").reindex(columns=radii)
-            for k in ("n_water", "n_valid", "coverage")}
-    times = wide["coverage"].index.get_level_values("time").tz_localize(None).values
-    return times, *(wide[k].to_numpy(float) for k in ("n_water", "n_valid", "coverage")), radii
+    keys = ("n_water", "n_valid", "coverage")
+    times, wide = per_scene_arrays(table, keys, radii)
+    return times, *(wide[k] for k in keys), radii
 
 
 def budget_ensemble(ds: xr.Dataset, settings: dict, *, deployment_id: str,

@@ -90,3 +90,20 @@ def test_ice_type_split_adds_up_to_the_unsplit_counts():
     whole = cl.climatology_table(w, ["r"] * 6, n_boot=50)
     assert split["n_windows"].sum() == whole["n_windows"].sum()
     assert set(split["ice_type"]) == {"first-year", "multiyear"}
+
+
+def test_replicate_medians_equal_numpy_median_of_each_replicate():
+    # reference: numpy.median of each replicate's concatenated records, odd and even
+    # counts and groups of unequal size
+    from floeheat.climatology import replicate_medians
+
+    rng = np.random.default_rng(4)
+    values = rng.normal(size=(23, 5))
+    rows = [np.arange(0, 7), np.arange(7, 8), np.arange(8, 20), np.arange(20, 23)]
+    picks = rng.integers(0, 4, size=(300, 4))
+    member = rng.integers(0, 5, size=300)
+    expect = [np.median(values[np.concatenate([rows[k] for k in p]), m])
+              for p, m in zip(picks, member)]
+    np.testing.assert_array_equal(replicate_medians(values, rows, picks, member), expect)
+    expect_1d = [np.median(values[np.concatenate([rows[k] for k in p]), 0]) for p in picks]
+    np.testing.assert_array_equal(replicate_medians(values[:, 0], rows, picks), expect_1d)

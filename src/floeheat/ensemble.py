@@ -42,6 +42,7 @@ import numpy as np
 import xarray as xr
 
 from floeheat import constants as C
+from floeheat.climatology import replicate_medians
 
 __all__ = [
     "FACTORS",
@@ -650,10 +651,7 @@ def bootstrap_median_with_members(values, member_values, groups, n_boot: int,
     rows = [np.flatnonzero(inverse == k) for k in range(labels.size)]
     picks = rng.integers(0, labels.size, size=(n_boot, labels.size))
     member = rng.integers(0, filled.shape[1], size=n_boot)
-    medians = np.empty(n_boot)
-    for b in range(n_boot):
-        idx = np.concatenate([rows[k] for k in picks[b]])
-        medians[b] = np.median(filled[idx, member[b]])
+    medians = replicate_medians(filled, rows, picks, member)
     lo, hi = np.percentile(medians, [round(50.0 * (1.0 - level), 10),
                                      round(50.0 * (1.0 + level), 10)])
     return float(lo), float(hi)

@@ -251,7 +251,7 @@ def separation_change(time_a, lat_a, lon_a, time_b, lat_b, lon_b, start, end) ->
     """
     from pyproj import Geod
 
-    from floeheat.track import interpolate_track
+    from floeheat.track import interpolate_positions
 
     t0 = max(pd.Timestamp(start), pd.Timestamp(np.asarray(time_a)[0]),
              pd.Timestamp(np.asarray(time_b)[0]))
@@ -260,12 +260,13 @@ def separation_change(time_a, lat_a, lon_a, time_b, lat_b, lon_b, start, end) ->
     if t1 - t0 < pd.Timedelta(hours=1):
         return float("nan")
     grid = pd.date_range(t0, t1, freq="h").values
-    pa = interpolate_track(np.asarray(time_a, "datetime64[ns]"), np.asarray(lat_a, float),
-                           np.asarray(lon_a, float), grid)
-    pb = interpolate_track(np.asarray(time_b, "datetime64[ns]"), np.asarray(lat_b, float),
-                           np.asarray(lon_b, float), grid)
-    _, _, d = Geod(ellps="WGS84").inv(pa["longitude"].values, pa["latitude"].values,
-                                      pb["longitude"].values, pb["latitude"].values)
+    lat_pa, lon_pa, *_ = interpolate_positions(np.asarray(time_a, "datetime64[ns]"),
+                                               np.asarray(lat_a, float),
+                                               np.asarray(lon_a, float), grid)
+    lat_pb, lon_pb, *_ = interpolate_positions(np.asarray(time_b, "datetime64[ns]"),
+                                               np.asarray(lat_b, float),
+                                               np.asarray(lon_b, float), grid)
+    _, _, d = Geod(ellps="WGS84").inv(lon_pa, lat_pa, lon_pb, lat_pb)
     d = np.asarray(d, dtype=float)
     d = d[np.isfinite(d)]
     return float(d.max() - d.min()) if d.size >= 2 else float("nan")
@@ -312,25 +313,31 @@ def residual_outliers(windows: pd.DataFrame, mad_factor: float = C.SCREEN_OUTLIE
     dur = (windows["window_end"] - windows["window_start"]).dt.total_seconds()
     f_tr = windows["q_tr_MJ"].astype(float) * 1e6 / dur.where(dur > 0)
     out["f_tr_W_m2"] = f_tr
-    out["f_tr_peer_median_W_m2"] = np.nan
-    out["n_peers"] = 0
-    out["flag_residual_outlier"] = False
     mid = windows["window_start"] + (windows["window_end"] - windows["window_start"]) / 2
     keys = ["array_id", "source", "radius_m"]
+    n_peers = np.zeros(len(windows), dtype=int)
+    peer_median = np.full(len(windows), np.nan)
+    outlier = np.zeros(len(windows), dtype=bool)
+    f_all, mid_all = f_tr.to_numpy(float), mid.to_numpy()
     for _, group in windows.groupby(keys, sort=False):
-        for i in group.index:
-            peers = group[(group["deployment_id"] != windows.at[i, "deployment_id"])
-                          & (group["window_start"] <= mid[i]) & (group["window_end"] > mid[i])]
-            vals = f_tr[peers.index].to_numpy(float)
+        pos = windows.index.get_indexer(group.index)
+        dep = group["deployment_id"].to_numpy()
+        start, end = group["window_start"].to_numpy(), group["window_end"].to_numpy()
+        f = f_all[pos]
+        for k, i in enumerate(pos):
+            peers = (dep != dep[k]) & (start <= mid_all[i]) & (end > mid_all[i])
+            vals = f[peers]
             vals = vals[np.isfinite(vals)]
-            out.at[i, "n_peers"] = int(vals.size)
-            if vals.size < 2 or not np.isfinite(f_tr[i]):
+            n_peers[i] = vals.size
+            if vals.size < 2 or not np.isfinite(f_all[i]):
                 continue
             med = float(np.median(vals))
             mad = 1.4826 * float(np.median(np.abs(vals - med)))
-            out.at[i, "f_tr_peer_median_W_m2"] = med
-            out.at[i, "flag_residual_outlier"] = bool(
-                abs(f_tr[i] - med) > max(mad_factor * mad, floor_W_m2))
+            peer_median[i] = med
+            outlier[i] = bool(abs(f_all[i] - med) > max(mad_factor * mad, floor_W_m2))
+    out["f_tr_peer_median_W_m2"] = peer_median
+    out["n_peers"] = n_peers
+    out["flag_residual_outlier"] = outlier
     return out
 
 

@@ -11,6 +11,8 @@ longitudes returned in [-180, 180).
 
 from __future__ import annotations
 
+import threading
+
 from collections.abc import Iterable
 
 import numpy as np
@@ -41,8 +43,28 @@ _MEDIAN_HALF_WINDOW = 3
 
 def _ns(t) -> np.ndarray:
     t = getattr(t, "values", t)
+    if isinstance(t, np.ndarray) and t.dtype == "datetime64[ns]":
+        return np.atleast_1d(t)  # naive times are UTC already
     return np.asarray(pd.to_datetime(np.atleast_1d(t), utc=True).tz_convert(None),
                       dtype="datetime64[ns]")
+
+
+_TRANSFORMERS = threading.local()
+
+
+def _transformer(source, target) -> Transformer:
+    """A lon/lat-ordered transformer, kept per thread for CRSs given as strings
+    (building one costs far more than transforming a track)."""
+    if not (isinstance(source, str) and isinstance(target, str)):
+        return Transformer.from_crs(CRS.from_user_input(source), CRS.from_user_input(target),
+                                    always_xy=True)
+    cache = getattr(_TRANSFORMERS, "cache", None)
+    if cache is None:
+        cache = _TRANSFORMERS.cache = {}
+    key = (source, target)
+    if key not in cache:
+        cache[key] = Transformer.from_crs(source, target, always_xy=True)
+    return cache[key]
 
 
 def _wrap_lon(lon) -> np.ndarray:
@@ -300,7 +322,7 @@ def to_working_crs(latitude_deg, longitude_deg, crs=C.CRS_WORKING_NORTH):
     >>> round(float(x), 3), round(float(y), 3)
     (-1578206.404, 422879.131)
     """
-    tr = Transformer.from_crs("EPSG:4326", CRS.from_user_input(crs), always_xy=True)
+    tr = _transformer("EPSG:4326", crs)
     x, y = tr.transform(np.asarray(longitude_deg, dtype=float),
                         np.asarray(latitude_deg, dtype=float))
     return np.asarray(x, dtype=float), np.asarray(y, dtype=float)
@@ -333,8 +355,7 @@ def interpolate_positions(time, latitude_deg, longitude_deg, target_time, crs=No
             on_fix = np.isin(ts, t)
             bad = inside & ~on_fix & (t[i + 1] - t[i] > gap_s)
             xo[bad] = yo[bad] = np.nan
-    tr = Transformer.from_crs(CRS.from_user_input(crs), "EPSG:4326", always_xy=True)
-    lono, lato = tr.transform(xo, yo)
+    lono, lato = _transformer(crs, "EPSG:4326").transform(xo, yo)
     lono = np.where(np.isfinite(xo), _wrap_lon(lono), np.nan)
     lato = np.where(np.isfinite(yo), lato, np.nan)
     return lato, lono, xo, yo, crs

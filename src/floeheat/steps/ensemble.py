@@ -244,19 +244,23 @@ def attribution_table(budget_status: list[str]) -> pd.DataFrame:
         record = read_status(path)
         if not record.get("ok"):
             continue
-        ds = xr.open_zarr(record["budget_zarr"], consolidated=True)
-        if "variance_share" not in ds:
+        store = xr.open_zarr(record["budget_zarr"], consolidated=True)
+        if "variance_share" not in store:
             continue
-        share = ds["variance_share"].load()
+        names = ["variance_share", "t_season_member", "t_season", "t_season_lo",
+                 "t_season_hi"]
+        ds = store[names].load()  # one read per array, not one per value
+        share = ds["variance_share"]
         t_m = ds["t_season_member"].values
+        t, t_lo, t_hi = (ds[k].values for k in ("t_season", "t_season_lo", "t_season_hi"))
         for i, s in enumerate(ds["source"].values):
             for j, r in enumerate(ds["radius"].values):
-                if not np.isfinite(float(ds["t_season"][i, j])):
+                if not np.isfinite(float(t[i, j])):
                     continue
                 row = {"deployment_id": record["deployment_id"], "source": str(s),
-                       "radius_m": float(r), "t_ice": float(ds["t_season"][i, j]),
-                       "t_ice_lo": float(ds["t_season_lo"][i, j]),
-                       "t_ice_hi": float(ds["t_season_hi"][i, j]),
+                       "radius_m": float(r), "t_ice": float(t[i, j]),
+                       "t_ice_lo": float(t_lo[i, j]),
+                       "t_ice_hi": float(t_hi[i, j]),
                        "t_ice_sd": float(np.nanstd(t_m[:, i, j]))
                        if np.isfinite(t_m[:, i, j]).any() else float("nan"),
                        "n_members": int(np.isfinite(t_m[:, i, j]).sum())}

@@ -155,15 +155,18 @@ def run_screen(budget_status: list[str], bathymetry: list[str], screen_csv: str,
         f = scr.window_time_flags(track["time"].values, dist, mine, settings["distance_m"],
                                   speed, settings["max_daily_speed_m_s"])
         mates = [m for m in tracks if m != dep and arrays.get(m) == arrays[dep]]
-        sep = []
-        for _, w in mine.iterrows():
-            changes = [scr.separation_change(
-                track["time"].values, track["latitude"].values, track["longitude"].values,
-                tracks[m]["time"].values, tracks[m]["latitude"].values,
-                tracks[m]["longitude"].values, w["window_start"], w["window_end"])
-                for m in mates]
-            changes = [c for c in changes if np.isfinite(c)]
-            sep.append(max(changes) if changes else float("nan"))
+        sep, by_period = [], {}
+        for start, end in zip(mine["window_start"], mine["window_end"]):
+            # every source and radius shares the window's period: computed once
+            if (start, end) not in by_period:
+                changes = [scr.separation_change(
+                    track["time"].values, track["latitude"].values,
+                    track["longitude"].values, tracks[m]["time"].values,
+                    tracks[m]["latitude"].values, tracks[m]["longitude"].values, start, end)
+                    for m in mates]
+                changes = [c for c in changes if np.isfinite(c)]
+                by_period[start, end] = max(changes) if changes else float("nan")
+            sep.append(by_period[start, end])
         f["max_separation_change_m"] = sep
         f["flag_shear"] = f["max_separation_change_m"].fillna(0.0) > \
             settings["max_separation_change_m"]

@@ -31,6 +31,14 @@ def save_figure(fig, path) -> None:
     plt.close(fig)
 
 
+def _legend(ax, **kwargs):
+    """A legend beside the axes, right of them: it never hides data, and its place is
+    fixed (matplotlib's "best" place tests every legend position against every plotted
+    point, which costs more than the rest of the figure)."""
+    return ax.legend(loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0.0,
+                     **kwargs)
+
+
 def _times(ds: xr.Dataset) -> np.ndarray:
     return ds["time"].values
 
@@ -66,7 +74,7 @@ def budget_figure(ds: xr.Dataset, title: str):
         ax.set_xlabel("time (UTC)")
         ax.tick_params(axis="x", labelrotation=30)
     axes[0][0].set_ylabel("cumulative energy (MJ m$^{-2}$)")
-    axes[0][-1].legend(loc="best", fontsize=8)
+    _legend(axes[0][-1], fontsize=8)
     return fig
 
 
@@ -84,14 +92,15 @@ def openwater_figure(ds: xr.Dataset, scene_times, title: str):
             ax.plot(t, series, styles.get(str(source), ":"), color=PALETTE[k % len(PALETTE)],
                     label=f"{source}, {float(radius) / 1000:g} km")
             k += 1
-    for i, st in enumerate(np.asarray(scene_times, dtype="datetime64[ns]")):
-        ax.axvline(st, color="0.75", linewidth=0.6, zorder=0,
-                   label="radar scene" if i == 0 else None)
+    scenes = np.asarray(scene_times, dtype="datetime64[ns]")
+    if scenes.size:  # one line collection, full height, for all scenes
+        ax.vlines(scenes, 0.0, 1.0, transform=ax.get_xaxis_transform(), colors="0.75",
+                  linewidth=0.6, zorder=0, label="radar scene")
     ax.set_ylabel("open-water fraction (1)")
     ax.set_xlabel("time (UTC)")
     ax.set_ylim(bottom=0)
     ax.set_title(f"{title}: open water")
-    ax.legend(fontsize=8, ncol=2)
+    _legend(ax, fontsize=8)
     ax.tick_params(axis="x", labelrotation=30)
     return fig
 
@@ -123,7 +132,7 @@ def floe_context_figure(floes: pd.DataFrame, title: str):
         ax.set_ylim(bottom=0)
         handles = [h for h in ax.get_lines() if len(h.get_xdata())]
         if handles:
-            ax.legend(handles=handles, fontsize=7)
+            _legend(ax, handles=handles, fontsize=7)
     axes[-1].set_xlabel("time (UTC)")
     axes[-1].tick_params(axis="x", labelrotation=30)
     axes[0].set_title(f"{title}: the buoy's floe within {radius_km:g} km")
@@ -152,7 +161,7 @@ def transmittance_figure(ds: xr.Dataset, seasonal: pd.DataFrame, title: str):
     ax.set_ylabel("through-ice transmittance (1)")
     ax.set_xlabel("time (UTC)")
     ax.set_title(f"{title}: transmittance")
-    ax.legend(fontsize=8)
+    _legend(ax, fontsize=8)
     ax.tick_params(axis="x", labelrotation=30)
     return fig
 
@@ -202,7 +211,7 @@ def climatology_figure(clim: pd.DataFrame):
     ax.set_ylabel("through-ice transmittance (1), median and IQR")
     ax.set_xticks(range(1, 13))
     ax.set_title("climatology")
-    ax.legend(fontsize=7)
+    _legend(ax, fontsize=7)
     return fig
 
 
@@ -294,7 +303,7 @@ def bulkflux_figure(windows: pd.DataFrame, whole: pd.DataFrame, factor: float = 
     ax.set_xlabel("bulk rho cp c_h u* (T_ml - T_f) (W m-2)")
     ax.set_ylabel("measured F_b - F_c at the ice base (W m-2)")
     ax.set_title("ocean-to-ice heat flux: measured against bulk (dots: windows)", fontsize=9)
-    ax.legend(fontsize=7)
+    _legend(ax, fontsize=7)
     return fig
 
 
@@ -324,7 +333,7 @@ def screen_figure(track: pd.DataFrame, summary: pd.DataFrame, distance_limit_m: 
         ax.axhline(distance_limit_m / 1000.0, color="0.3", ls="--", lw=1,
                    label="screening distance")
         ax.set_ylim(bottom=0.0)
-        ax.legend(fontsize=7)
+        _legend(ax, fontsize=7)
     ax.set_xlabel("time (UTC)")
     ax.set_ylabel("distance to the isobath (km)")
     ax.set_title(f"advection screen: {label}", fontsize=9)
@@ -361,7 +370,7 @@ def ice_type_figure(clim: pd.DataFrame, source: str, radius_m: float):
             ax.errorbar(x, by["t"], yerr=[by["t"] - by["lo"], by["hi"] - by["t"]], fmt="o",
                         color=PALETTE[k % len(PALETTE)], capsize=3,
                         label=f"{it or 'not given'} ({int(by['n'].sum())} windows)")
-        ax.legend(fontsize=8)
+        _legend(ax, fontsize=8)
     ax.set_xticks(range(1, 13))
     ax.set_xlabel("month")
     ax.set_ylabel("through-ice transmittance (1), median and IQR")

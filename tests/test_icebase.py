@@ -200,3 +200,24 @@ def test_heating_cycle_pick_wins_where_temperature_cannot_see_the_interface():
     # the heating pick is the midpoint between the last heated-ice sensor and the next
     np.testing.assert_allclose(out.z_b.values, 1.525, atol=1e-9)
     assert (out.source.values == 2).all()
+
+
+def test_two_layer_cost_equals_the_direct_sums():
+    # reference: the least-squares costs summed sensor by sensor for each candidate
+    # (ice above zc: a line through (zc, target); water below: a constant)
+    rng = np.random.default_rng(11)
+    z = np.sort(rng.uniform(0.5, 3.0, 24))
+    t = np.where(z < 1.7, -1.8 + 2.0 * (1.7 - z), -1.75) + rng.normal(0.0, 0.01, z.size)
+    grid = np.union1d(np.arange(0.5, 3.0, 0.01), z)
+    expect = []
+    for zc in grid:
+        ice, wat = z <= zc, z > zc
+        if ice.sum() < 3 or wat.sum() < 2:
+            expect.append(np.inf)
+            continue
+        dz, dt = z[ice] - zc, t[ice] + 1.8
+        slope = np.sum(dz * dt) / np.sum(dz * dz)
+        expect.append(np.sum((dt - slope * dz) ** 2) + np.sum((t[wat] - t[wat].mean()) ** 2))
+    got = I._two_layer_cost(z[::-1], t[::-1], -1.8, grid)  # any sensor order
+    np.testing.assert_allclose(got, expect, rtol=1e-9, atol=1e-12)
+    assert np.isinf(got).sum() > 0 and np.isfinite(got).sum() > 100

@@ -230,21 +230,30 @@ def _two_layer_cost(z: np.ndarray, t: np.ndarray, target: float, grid: np.ndarra
     Sensors (``z``, ``t``) at or above a candidate zc are ice, a straight line reaching
     ``target`` (the freezing temperature) at zc; those below are water, a constant. inf
     where either layer has too few sensors (3 ice, 2 water).
+
+    The ice of a candidate is a run of the sensors sorted by depth, so every sum is a
+    difference of running sums (of depths about their mean and temperatures about the
+    target, which keeps the differences well conditioned).
     """
-    zc = grid[:, None]
-    ice = z[None, :] <= zc
-    dz = np.where(ice, z[None, :] - zc, 0.0)
-    dt = np.where(ice, t[None, :] - target, 0.0)
-    sxx = np.sum(dz * dz, axis=1)
-    sxy = np.sum(dz * dt, axis=1)
+    order = np.argsort(z, kind="stable")
+    zs = np.asarray(z, float)[order]
+    ref = float(np.mean(zs))
+    dz, d = zs - ref, np.asarray(t, float)[order] - target
+
+    def running(x):
+        return np.concatenate([[0.0], np.cumsum(x)])
+
+    s_z, s_zz, s_d, s_dd, s_zd = (running(x) for x in (dz, dz * dz, d, d * d, dz * d))
+    k = np.searchsorted(zs, grid, side="right")  # ice sensors: z <= zc
+    zc = np.asarray(grid, float) - ref
+    sxx = s_zz[k] - 2.0 * zc * s_z[k] + k * zc * zc
+    sxy = s_zd[k] - zc * s_d[k]
     with np.errstate(divide="ignore", invalid="ignore"):
-        sse_ice = np.sum(dt * dt, axis=1) - np.where(sxx > 0, sxy * sxy / sxx, 0.0)
-    wat = ~ice
-    nw = wat.sum(axis=1)
-    tw_sum = np.sum(np.where(wat, t[None, :], 0.0), axis=1)
-    tw_sq = np.sum(np.where(wat, t[None, :] ** 2, 0.0), axis=1)
-    sse_w = np.where(nw > 0, tw_sq - tw_sum ** 2 / np.maximum(nw, 1), 0.0)
-    ok = (ice.sum(axis=1) >= 3) & (nw >= 2)
+        sse_ice = s_dd[k] - np.where(sxx > 0, sxy * sxy / sxx, 0.0)
+    nw = zs.size - k
+    w_sum, w_sq = s_d[-1] - s_d[k], s_dd[-1] - s_dd[k]
+    sse_w = np.where(nw > 0, w_sq - w_sum ** 2 / np.maximum(nw, 1), 0.0)
+    ok = (k >= 3) & (nw >= 2)
     return np.where(ok, sse_ice + sse_w, np.inf)
 
 

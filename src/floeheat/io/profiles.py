@@ -251,9 +251,15 @@ def _csv_profiles(path: Path) -> dict:
                skey: numeric_column(table, scol, file=path)}
     lat = numeric_column(table, "latitude", file=path)
     lon = numeric_column(table, "longitude", file=path)
-    unique, first = np.unique(ids, return_index=True)
-    order = unique[np.argsort(first)]  # profiles in order of first appearance
-    rows = [np.flatnonzero(ids == pid) for pid in order]
+    unique, first, inverse = np.unique(ids, return_index=True, return_inverse=True)
+    rank = np.argsort(first)  # profiles in order of first appearance
+    order = unique[rank]
+    position = np.empty_like(rank)
+    position[rank] = np.arange(rank.size)
+    by_profile = position[inverse.ravel()]
+    # each profile's samples in file order (a stable sort keeps it)
+    samples = np.argsort(by_profile, kind="stable")
+    rows = np.split(samples, np.cumsum(np.bincount(by_profile, minlength=rank.size))[:-1])
     width = max(len(r) for r in rows)
     arrays = {k: np.full((len(rows), width), np.nan) for k in columns}
     for k, r in enumerate(rows):

@@ -13,7 +13,8 @@ import numpy as np
 import pytest
 from affine import Affine
 
-from floeheat.floes import circle_pixels, floe_context, rim_arcs, scene_floe_context
+from floeheat.floes import (circle_pixels, distance_from_pixel, floe_context, rim_arcs,
+                            scene_floe_context)
 from floeheat.openwater import circle_fractions
 
 PX = 10.0  # pixel size [m]
@@ -150,3 +151,20 @@ def test_rim_arcs_min_gap():
     lab[0, 2] = lab[0, 4] = 1                      # one pixel apart on the rim
     assert rim_arcs(lab, rim, (3.0, 3.0)) == {1: 1}
     assert rim_arcs(lab, rim, (3.0, 3.0), min_gap_px=1) == {1: 2}
+
+
+def test_distance_from_pixel_equals_scipy_distance_transform():
+    # reference: scipy.ndimage.distance_transform_edt of the complement, read at the
+    # pixel, with unequal pixel spacings
+    from scipy import ndimage
+
+    rng = np.random.default_rng(5)
+    for trial in range(30):
+        target = rng.random((60, 45)) < rng.uniform(0.001, 0.2)
+        if not target.any():
+            continue
+        r, c = rng.integers(0, 60), rng.integers(0, 45)
+        sampling = (rng.uniform(5, 50), rng.uniform(5, 50))
+        expect = ndimage.distance_transform_edt(~target, sampling=sampling)[r, c]
+        assert distance_from_pixel(target, r, c, sampling) == pytest.approx(expect, rel=1e-12)
+    assert np.isnan(distance_from_pixel(np.zeros((3, 3), bool), 1, 1))

@@ -46,7 +46,7 @@ from floeheat.constants import MASK_CODES
 from floeheat.openwater import _steps, circle_window
 
 __all__ = ["FloeContext", "circle_pixels", "buoy_pixel", "floe_context",
-           "scene_floe_context", "rim_arcs"]
+           "scene_floe_context", "rim_arcs", "distance_from_pixel"]
 
 
 class FloeContext(NamedTuple):
@@ -176,6 +176,25 @@ def rim_arcs(labels, rim, centre_rc, min_gap_px: int = 2) -> dict:
     return {int(k): max(1, int(c)) for k, c in zip(labs, counts)}
 
 
+def distance_from_pixel(target, row: int, col: int, sampling=(1.0, 1.0)) -> float:
+    """Distance from the centre of pixel (row, col) to the nearest pixel centre of
+    ``target`` (bool array), pixels ``sampling`` = (dy, dx) apart: the value the
+    Euclidean distance transform of ``~target`` holds at that pixel, without computing
+    it at every other pixel. NaN when ``target`` is empty.
+
+    Examples
+    --------
+    >>> m = np.zeros((5, 5), bool); m[4, 1] = True
+    >>> distance_from_pixel(m, 0, 4, (10.0, 10.0))
+    50.0
+    """
+    rows, cols = np.nonzero(np.asarray(target, bool))
+    if rows.size == 0:
+        return float("nan")
+    d2 = ((rows - row) * float(sampling[0])) ** 2 + ((cols - col) * float(sampling[1])) ** 2
+    return float(np.sqrt(d2.min()))
+
+
 def floe_context(window, row_off: int, col_off: int, transform, shape, x: float, y: float,
                  radius_proj: float, scale_factor: float = 1.0, codes=None) -> FloeContext:
     """Floe, distance to open water and crossing leads around a buoy in a mask window.
@@ -266,9 +285,9 @@ def floe_context(window, row_off: int, col_off: int, transform, shape, x: float,
     if in_circle:
         sampling = (dy_m, dx_m)
         if water.any():
-            dist_w = float(ndimage.distance_transform_edt(~water, sampling=sampling)[bi, bj])
+            dist_w = distance_from_pixel(water, bi, bj, sampling)
         if nodata.any():
-            dist_n = float(ndimage.distance_transform_edt(~nodata, sampling=sampling)[bi, bj])
+            dist_n = distance_from_pixel(nodata, bi, bj, sampling)
     # leads
     wl = measure.label(water, connectivity=2)
     a_y = (y - (tuple(transform)[5] + e * (r0 + 0.0))) / e - 0.5

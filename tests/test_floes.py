@@ -13,8 +13,13 @@ import numpy as np
 import pytest
 from affine import Affine
 
-from floeheat.floes import (circle_pixels, distance_from_pixel, floe_context, rim_arcs,
-                            scene_floe_context)
+from floeheat.floes import (
+    circle_pixels,
+    distance_from_pixel,
+    floe_context,
+    rim_arcs,
+    scene_floe_context,
+)
 from floeheat.openwater import circle_fractions
 
 PX = 10.0  # pixel size [m]
@@ -159,7 +164,7 @@ def test_distance_from_pixel_equals_scipy_distance_transform():
     from scipy import ndimage
 
     rng = np.random.default_rng(5)
-    for trial in range(30):
+    for _trial in range(30):
         target = rng.random((60, 45)) < rng.uniform(0.001, 0.2)
         if not target.any():
             continue

@@ -12,7 +12,6 @@ longitudes returned in [-180, 180).
 from __future__ import annotations
 
 import threading
-
 from collections.abc import Iterable
 
 import numpy as np

@@ -1,13 +1,14 @@
 """Target 2: one pass over gridded forcing, whatever the number of tracks.
 
 Writes an hourly shortwave grid and a daily concentration grid for one season as the
-forcing stores the workflow builds (``floeheat.steps.forcing.write_store``: point-series
-chunks), opens them lazily as the budget stage does, and times sampling 1 and 50 drifting
-tracks in one call each (``floeheat.shortwave.sample_at_tracks`` and
-``floeheat.microwave.fraction_at_buoys``, which take every track at once). For contrast
-it also times the way the workflow calls them today, one track per budget job, and it
+forcing stores the workflow builds (``floeheat.steps.forcing.write_store``: chunks for
+one pass along time, the whole grid per chunk), opens them lazily as the budget stage
+does, and times sampling 1 and 50 drifting tracks in one call each
+(``floeheat.shortwave.sample_at_tracks`` and ``floeheat.microwave.fraction_at_buoys``,
+which take every track at once, as each budget job does for its part's deployments).
+For contrast it also times one call per track (as one job per deployment would), and it
 counts the store chunks each call loads (a dask callback on the stores' block tasks)
-against the shortwave chunks that hold the tracks' grid corners.
+against the chunks of the stores.
 """
 
 from __future__ import annotations
@@ -101,19 +102,11 @@ def _sample(paths, t_sw, t_ci, lat_h, lon_h, lat_d, lon_d):
     return a, b
 
 
-def _corner_chunks(lat, lon, dlat: float, dlon: float) -> int:
-    """Spatial chunks of the shortwave store that the bilinear corners of the tracks
-    lie in (the least a bilinear sampler must read)."""
-    from floeheat.steps.forcing import SPATIAL_CHUNK as CH
-
-    i = np.floor((lat - 60.0) / dlat).astype(int).ravel()
-    j = np.floor(np.mod(lon, 360.0) / dlon).astype(int).ravel()
-    n_cols = int(round(360.0 / dlon))
-    pairs = set()
-    for a in (i // CH, (i + 1) // CH):
-        for b in (j // CH, ((j + 1) % n_cols) // CH):
-            pairs |= set(zip(a.tolist(), b.tolist(), strict=True))
-    return len(pairs)
+def _store_chunks(path) -> int:
+    """Chunks of a store's data variable (the most one pass can read)."""
+    ds = xr.open_zarr(path, consolidated=True)
+    var = next(v for v in ds.data_vars.values() if v.ndim == 3)
+    return int(np.prod(var.data.numblocks))
 
 
 class _ChunkCounter(Callback):
@@ -186,14 +179,14 @@ def run(scratch, scale: str) -> Result:
              f"(medians of {repeat})",
              "of which shortwave {:.2f} / {:.2f} s = {:.1f}x, concentration {:.2f} / {:.2f} s "
              "= {:.1f}x".format(*_split(parts)),
-             f"{n_many} tracks one call each (as {n_many} budget jobs do) {t_sep:.2f} s = "
+             f"{n_many} tracks one call each (as one job per deployment would) {t_sep:.2f} s = "
              f"{t_sep / t_one:.1f}x one track",
              f"one-pass values equal the per-track values: {same}",
-             "store chunks loaded per call: shortwave (of them holding the tracks' grid "
-             "corners) / concentration: 1 track {} ({}) / {}, {} tracks {} ({}) / {}".format(
-                 loaded["one"][0], _corner_chunks(lat_h[:1], lon_h[:1], *_spacing(scale)),
-                 loaded["one"][1], n_many, loaded["all"][0],
-                 _corner_chunks(lat_h, lon_h, *_spacing(scale)), loaded["all"][1])]
+             "store chunks loaded per call (of the store's chunks) shortwave / "
+             "concentration: 1 track {} / {}, {} tracks {} / {} (of {} / {})".format(
+                 loaded["one"][0], loaded["one"][1], n_many, loaded["all"][0],
+                 loaded["all"][1], _store_chunks(paths["shortwave"]),
+                 _store_chunks(paths["concentration"]))]
     return Result(2, "One pass over gridded forcing (50 tracks / 1 track)", t_all / t_one,
                   2.0, f"{size}; {n_many} tracks spread over the basin", notes)
 

@@ -1,5 +1,6 @@
-# The budget of each deployment (one job per part): forcing and microwave open water
-# sampled at the track, radar fractions in time, storage, ice base and the budget
+# The budget of each deployment (one job per part): shortwave and microwave open water
+# sampled at the tracks of all the part's deployments in one pass over each forcing
+# store, then per deployment radar fractions in time, storage, ice base and the budget
 # terms -> budget.zarr.
 
 

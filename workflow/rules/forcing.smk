@@ -1,5 +1,6 @@
-# Gridded forcing read once per run into stores laid out for point series (small
-# spatial chunks, long time chunks). Depends on the forcing files alone.
+# Gridded forcing read once per run into stores laid out for one pass along time (the
+# whole grid per chunk over a run of time steps): every budget job samples all its
+# deployments' tracks in one pass. Depends on the forcing files alone.
 
 
 rule forcing_store:
@@ -19,8 +20,8 @@ rule forcing_store:
     priority: 10
     threads: 1
     resources:
-        # read and rechunked a block of grid cells at a time: memory grows slowly with
-        # the files, time with their size
+        # read and written a run of time steps at a time: memory grows slowly with the
+        # files, time with their size
         mem_mb=sized_mb(2000, per_input_mb=0.5, cap_mb=32000),
         runtime=sized_min(15, per_input_gb_min=20),
     script:

@@ -1,4 +1,4 @@
-"""Adapter of rule forcing_store: gridded forcing into point-series stores."""
+"""Adapter of rule forcing_store: gridded forcing into stores read in one pass along time."""
 from floeheat.steps.forcing import run_forcing_store
 from floeheat.steps.status import setup_logging
 

@@ -1,52 +1,65 @@
 """Stage ``forcing_store``: gridded shortwave and concentration, read once per run.
 
 The files are opened lazily through the reader layer and rewritten as Zarr stores
-chunked for point series: small spatial chunks and long time chunks, so that each
-deployment's extraction reads only the few chunks around its track. Chunk sizes depend
-on the data alone, never on the number of threads.
+chunked for one pass in time: each chunk holds the whole grid (or, for a grid too large
+for one chunk, a large tile of it) over a run of time steps, so that sampling every
+track of a part reads each chunk of the tracks' period once, whatever the number of
+tracks and wherever they drift (:func:`floeheat.steps.budget.sample_part_forcing`).
+Chunk sizes depend on the data alone, never on the number of threads.
 """
 
 from __future__ import annotations
 
 import json
 import logging
+import math
 from pathlib import Path
 
 import dask
+import numpy as np
 import xarray as xr
 
 from floeheat.io.gridded import open_concentration, open_shortwave
 from floeheat.steps.status import atomic_path
 
-__all__ = ["SPATIAL_CHUNK", "TIME_CHUNK", "point_series_chunks", "run_forcing_store",
-           "write_store"]
+__all__ = ["CHUNK_BYTES", "pass_chunks", "run_forcing_store", "write_store"]
 
 log = logging.getLogger(__name__)
 
-#: Cells per spatial chunk side of the point-series stores.
-SPATIAL_CHUNK = 16
-#: Longest time chunk (steps); a season of hourly data is about 3,700 steps.
-TIME_CHUNK = 8784
+#: Largest (uncompressed) chunk of a forcing store [bytes]: a few MB, the size Zarr
+#: and dask read efficiently (common practice, no source), small enough that a job
+#: holding a chunk per thread stays far below its memory request.
+CHUNK_BYTES = 8 * 2**20
+#: Dims that are not grid dims (interval bounds).
+_BOUNDS_DIMS = ("nv", "bnds")
 
 
-def point_series_chunks(ds: xr.Dataset) -> dict[str, int]:
-    """Chunk sizes for a point-series store: long in time, small in space.
+def pass_chunks(ds: xr.Dataset, chunk_bytes: int = CHUNK_BYTES) -> dict[str, int]:
+    """Chunk sizes for a store read in one pass along time.
+
+    The grid dims stay whole while one time step of the largest variable fits in
+    ``chunk_bytes``; time then takes as many steps as fit. A larger grid is cut into
+    tiles of about ``chunk_bytes``, one time step each.
 
     Examples
     --------
-    >>> import numpy as np
-    >>> ds = xr.Dataset({"a": (("time", "y", "x"), np.zeros((100, 40, 3)))})
-    >>> point_series_chunks(ds)
-    {'time': 100, 'y': 16, 'x': 3}
+    >>> ds = xr.Dataset({"a": (("time", "y", "x"), np.zeros((100, 40, 30), "float32"))})
+    >>> pass_chunks(ds, chunk_bytes=48_000)
+    {'time': 10, 'y': 40, 'x': 30}
+    >>> pass_chunks(ds, chunk_bytes=1_200)
+    {'time': 1, 'y': 20, 'x': 15}
     """
-    chunks = {}
-    for dim, size in ds.sizes.items():
-        if dim == "time":
-            chunks[dim] = min(size, TIME_CHUNK)
-        elif dim in ("nv", "bnds"):
-            chunks[dim] = size
-        else:
-            chunks[dim] = min(size, SPATIAL_CHUNK)
+    grid = [d for d in ds.dims if d != "time" and d not in _BOUNDS_DIMS]
+    step = max((int(np.prod([v.sizes[d] for d in v.dims if d != "time"])) * v.dtype.itemsize
+                for v in ds.data_vars.values() if "time" in v.dims
+                and not set(v.dims) & set(_BOUNDS_DIMS)), default=0)
+    chunks = {d: ds.sizes[d] for d in ds.dims}
+    if "time" in chunks and step:
+        chunks["time"] = max(1, min(ds.sizes["time"], chunk_bytes // step))
+    if step > chunk_bytes and grid:
+        cut = math.ceil(math.sqrt(step / chunk_bytes))
+        for d in grid:
+            chunks[d] = math.ceil(ds.sizes[d] / cut)
     return chunks
 
 
@@ -60,7 +73,7 @@ def write_store(ds: xr.Dataset | None, path: Path, threads: int) -> None:
         if ds is None:
             xr.Dataset(attrs={"absent": 1}).to_zarr(tmp, zarr_format=3, consolidated=True)
             return
-        ds = ds.chunk(point_series_chunks(ds))
+        ds = ds.chunk(pass_chunks(ds))
         for var in ds.variables.values():
             var.encoding.pop("chunks", None)
             var.encoding.pop("preferred_chunks", None)

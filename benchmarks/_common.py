@@ -165,6 +165,26 @@ def run_workflow(archive: Path, results: Path, *, cores: int = 2, configfiles=()
     return wall
 
 
+def snakemake_startup(repeat: int = 3) -> tuple[float, str]:
+    """Median wall time of a fresh interpreter importing Snakemake's command line (what
+    every ``snakemake`` run pays before reading the Snakefile), and a warning when it is
+    slow for a known reason of the machine ("" otherwise)."""
+    out = []
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        subprocess.run([sys.executable, "-c", "import snakemake.cli"], check=True)
+        out.append(time.perf_counter() - t0)
+    wall = statistics.median(out)
+    warn = ""
+    if wall > 5.0 and shutil.which("scontrol"):
+        # the Slurm executor plugin asks `scontrol show config` at import (10 s timeout)
+        warn = ("slow: the Slurm executor plugin runs `scontrol show config` when imported, "
+                "and this machine's Slurm client waits for a controller that does not "
+                "answer (a slurm.conf left by a stopped test cluster?); every snakemake "
+                "run here pays that wait")
+    return wall, warn
+
+
 def job_benchmarks(results: Path, since: float = 0.0) -> pd.DataFrame:
     """Snakemake benchmark files under ``results/benchmarks`` (written after ``since``)."""
     rows = []

@@ -165,10 +165,10 @@ def run_workflow(archive: Path, results: Path, *, cores: int = 2, configfiles=()
     return wall
 
 
-def snakemake_startup(repeat: int = 3) -> tuple[float, str]:
+def snakemake_startup_note(repeat: int = 3) -> str:
     """Median wall time of a fresh interpreter importing Snakemake's command line (what
-    every ``snakemake`` run pays before reading the Snakefile), and a warning when it is
-    slow for a known reason of the machine ("" otherwise)."""
+    every ``snakemake`` run pays before reading the Snakefile), as a report line, with
+    the cause when it is slow for a known reason of the machine."""
     out = []
     for _ in range(repeat):
         t0 = time.perf_counter()
@@ -182,7 +182,9 @@ def snakemake_startup(repeat: int = 3) -> tuple[float, str]:
                 "and this machine's Slurm client waits for a controller that does not "
                 "answer (a slurm.conf left by a stopped test cluster?); every snakemake "
                 "run here pays that wait")
-    return wall, warn
+    return (f"Snakemake's own start-up (fresh interpreter importing snakemake.cli, median "
+            f"of {repeat}): {wall:.1f} s per run, outside the jobs' time"
+            + (f"; {warn}" if warn else ""))
 
 
 def job_benchmarks(results: Path, since: float = 0.0) -> pd.DataFrame:

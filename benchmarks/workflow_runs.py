@@ -24,7 +24,7 @@ from benchmarks._common import (
     job_benchmarks,
     run_workflow,
     say,
-    snakemake_startup,
+    snakemake_startup_note,
     synth_archive,
 )
 
@@ -65,9 +65,7 @@ def run_incremental(scratch, scale: str) -> Result:
              f"/ full run {full_jobs['cpu_time'].sum():.1f} s = "
              f"{jobs['cpu_time'].sum() / full_jobs['cpu_time'].sum():.2f}; "
              f"mean job load {full_jobs['mean_load'].mean():.0f} % of a core (machine shared)"]
-    startup, warn = snakemake_startup()
-    notes.append(f"Snakemake's own start-up (fresh interpreter importing snakemake.cli, "
-                 f"median of 3): {startup:.1f} s of every run" + (f"; {warn}" if warn else ""))
+    notes.append(snakemake_startup_note())
     sizes = f"{archive_summary(archive)} ({spec.scene_px} px scenes), {CORES} cores"
     return Result(3, "Incremental rerun after an albedo change (rerun / full run)",
                   t_rerun / t_full, 0.10, sizes, notes)
@@ -185,9 +183,7 @@ def run_overhead(scratch, scale: str) -> Result:
              f"{4 * n_dep}; {counts.get('radar', 0)} radar jobs read the "
              f"{len(pd.read_csv(archive / 'scenes.csv'))} scenes; figures and tables are "
              "one job each (figures drawn by 2 processes)"]
-    startup, warn = snakemake_startup()
-    notes.append(f"Snakemake's own start-up (importing snakemake.cli, median of 3): "
-                 f"{startup:.1f} s, outside the jobs' time" + (f"; {warn}" if warn else ""))
+    notes.append(snakemake_startup_note())
     sizes = f"{archive_summary(archive)} of 512 x 512 px, {CORES} cores"
     return Result(5, "Orchestration overhead (wall / (sum of job time / cores))", ratio, 1.3,
                   sizes, notes)

@@ -165,26 +165,41 @@ def run_workflow(archive: Path, results: Path, *, cores: int = 2, configfiles=()
     return wall
 
 
-def snakemake_startup_note(repeat: int = 3) -> str:
-    """Median wall time of a fresh interpreter importing Snakemake's command line (what
-    every ``snakemake`` run pays before reading the Snakefile), as a report line, with
-    the cause when it is slow for a known reason of the machine."""
+def fresh_interpreter_time(code: str, repeat: int = 3) -> float:
+    """Median wall time [s] of a fresh interpreter running ``code``."""
     out = []
     for _ in range(repeat):
         t0 = time.perf_counter()
-        subprocess.run([sys.executable, "-c", "import snakemake.cli"], check=True)
+        subprocess.run([sys.executable, "-c", code], check=True)
         out.append(time.perf_counter() - t0)
-    wall = statistics.median(out)
-    warn = ""
-    if wall > 5.0 and shutil.which("scontrol"):
-        # the Slurm executor plugin asks `scontrol show config` at import (10 s timeout)
-        warn = ("slow: the Slurm executor plugin runs `scontrol show config` when imported, "
-                "and this machine's Slurm client waits for a controller that does not "
-                "answer (a slurm.conf left by a stopped test cluster?); every snakemake "
-                "run here pays that wait")
-    return (f"Snakemake's own start-up (fresh interpreter importing snakemake.cli, median "
-            f"of {repeat}): {wall:.1f} s per run, outside the jobs' time"
-            + (f"; {warn}" if warn else ""))
+    return statistics.median(out)
+
+
+def _scontrol_wait() -> float:
+    """Wall time [s] of ``scontrol show config`` (0 without a Slurm client), capped at
+    the 10 s timeout that Snakemake's Slurm executor plugin gives it when imported."""
+    if not shutil.which("scontrol"):
+        return 0.0
+    t0 = time.perf_counter()
+    try:
+        subprocess.run(["scontrol", "show", "config"], capture_output=True, timeout=10)
+    except subprocess.TimeoutExpired:
+        pass
+    return time.perf_counter() - t0
+
+
+def snakemake_startup_note(repeat: int = 3) -> str:
+    """A report line: the median wall time of a fresh interpreter importing Snakemake's
+    command line (what every ``snakemake`` run pays before reading the Snakefile), with
+    the cause when the Slurm client of the machine is what makes it slow."""
+    wall = fresh_interpreter_time("import snakemake.cli", repeat)
+    line = (f"Snakemake's own start-up (fresh interpreter importing snakemake.cli, median "
+            f"of {repeat}): {wall:.1f} s per run, outside the jobs' time")
+    if wall > 5.0 and (wait := _scontrol_wait()) > 5.0:
+        line += (f"; slow: of it, {wait:.0f} s is `scontrol show config` (run by the Slurm "
+                 "executor plugin when imported) waiting for a controller that does not "
+                 "answer; a slurm.conf left by a stopped test cluster?")
+    return line
 
 
 def job_benchmarks(results: Path, since: float = 0.0) -> pd.DataFrame:

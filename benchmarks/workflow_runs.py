@@ -8,9 +8,6 @@ Snakemake's own benchmark files; whole-run wall times are measured around the
 
 from __future__ import annotations
 
-import statistics
-import subprocess
-import sys
 import time
 
 import pandas as pd
@@ -21,6 +18,7 @@ from benchmarks._common import (
     archive_spec,
     archive_summary,
     fresh,
+    fresh_interpreter_time,
     job_benchmarks,
     run_workflow,
     say,
@@ -134,13 +132,8 @@ def startup_cost(module: str, repeat: int = 3) -> float:
     """Median wall time of a fresh interpreter importing what one job's script imports,
     and making its first xarray object (xarray then imports dask.array to recognise
     dask arrays: every job pays it before its first result)."""
-    code = f"import snakemake.script, {module}, xarray; xarray.DataArray([0.0])"
-    out = []
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        subprocess.run([sys.executable, "-c", code], check=True)
-        out.append(time.perf_counter() - t0)
-    return statistics.median(out)
+    return fresh_interpreter_time(
+        f"import snakemake.script, {module}, xarray; xarray.DataArray([0.0])", repeat)
 
 
 def run_overhead(scratch, scale: str) -> Result:

@@ -210,7 +210,48 @@ def job_benchmarks(results: Path, since: float = 0.0) -> pd.DataFrame:
             continue
         t = pd.read_csv(f, sep="\t")
         rel = f.relative_to(results / "benchmarks").with_suffix("")
-        rule = rel.parts[0]
+        rule, end = rel.parts[0], f.stat().st_mtime
         for rec in t.to_dict(orient="records"):
-            rows.append({"rule": rule, "job": str(rel), **rec})
+            rows.append({"rule": rule, "job": str(rel), "end": end, **rec})
     return pd.DataFrame(rows)
+
+
+def per_rule_note(jobs: pd.DataFrame) -> str:
+    """A report line: per rule the jobs, their median and total own time, and the wall
+    span from the first job's start to the last one's end (jobs of a rule that run side
+    by side span less than their total)."""
+    def span(g: pd.DataFrame) -> float:
+        return float(g["end"].max() - (g["end"] - g["s"]).min())
+
+    parts = [f"{rule} {len(g)}, {g['s'].median():.1f}, {g['s'].sum():.0f}, {span(g):.0f}"
+             for rule, g in jobs.groupby("rule")]
+    return "per rule (jobs, median s, total s, wall span s): " + "; ".join(parts)
+
+
+#: The module each per-job script imports first, by rule (for the per-job fixed cost).
+STEP_MODULES = {
+    "insitu": "floeheat.steps.insitu", "match_scenes": "floeheat.steps.scenes",
+    "radar": "floeheat.steps.scenes", "budget": "floeheat.steps.budget",
+    "figures": "floeheat.steps.figures", "tables": "floeheat.steps.tables",
+}
+
+
+def startup_cost(module: str, repeat: int = 3) -> float:
+    """Median wall time of a fresh interpreter importing what one job's script imports,
+    and making its first xarray object (xarray then imports dask.array to recognise
+    dask arrays: every job pays it before its first result)."""
+    return fresh_interpreter_time(
+        f"import snakemake.script, {module}, xarray; xarray.DataArray([0.0])", repeat)
+
+
+def fixed_cost_notes(jobs: pd.DataFrame, repeat: int = 3) -> list[str]:
+    """Report lines: each main rule's per-job fixed cost (:func:`startup_cost`) and their
+    sum over the jobs that ran, against the jobs' own time."""
+    fixed = {rule: startup_cost(mod, repeat) for rule, mod in STEP_MODULES.items()}
+    counts = jobs["rule"].value_counts()
+    total = sum(int(counts.get(r, 0)) * v for r, v in fixed.items())
+    return ["per-job fixed cost (fresh interpreter + the script's imports + first xarray "
+            f"object, median of {repeat}): " + ", ".join(f"{r} {v:.2f} s"
+                                                         for r, v in fixed.items()),
+            f"fixed cost summed over the jobs of those rules: {total:.0f} s = "
+            f"{100 * total / max(jobs['s'].sum(), 1e-9):.0f} % of all the jobs' own time"]

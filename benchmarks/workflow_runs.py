@@ -17,9 +17,10 @@ from benchmarks._common import (
     Result,
     archive_spec,
     archive_summary,
+    fixed_cost_notes,
     fresh,
-    fresh_interpreter_time,
     job_benchmarks,
+    per_rule_note,
     run_workflow,
     say,
     snakemake_startup_note,
@@ -57,6 +58,10 @@ def run_incremental(scratch, scale: str) -> Result:
     notes = [f"full run {t_full:.1f} s, rerun {t_rerun:.1f} s (wall, snakemake start to "
              "end, DAG building included)",
              "rerun jobs: " + ", ".join(f"{r} x{n}" for r, n in ran.items()),
+             f"rerun {per_rule_note(jobs)}",
+             f"10 % of the full run is {0.1 * t_full:.1f} s: the budget of every deployment "
+             "(all its terms move with the albedo), then the tables, then the figures that "
+             "plot them, must fit in it",
              f"rerun jobs' own time {jobs['s'].sum():.1f} s; the rest is Snakemake start-up, "
              "DAG building and checksum checks",
              f"CPU time of the jobs (load-independent): rerun {jobs['cpu_time'].sum():.1f} s "
@@ -121,21 +126,6 @@ def run_memory(scratch, scale: str) -> Result:
 
 # --------------------------------------------------------------------------- target 5
 
-_STEP_MODULES = {
-    "insitu": "floeheat.steps.insitu", "match_scenes": "floeheat.steps.scenes",
-    "radar": "floeheat.steps.scenes", "budget": "floeheat.steps.budget",
-    "figures": "floeheat.steps.figures", "tables": "floeheat.steps.tables",
-}
-
-
-def startup_cost(module: str, repeat: int = 3) -> float:
-    """Median wall time of a fresh interpreter importing what one job's script imports,
-    and making its first xarray object (xarray then imports dask.array to recognise
-    dask arrays: every job pays it before its first result)."""
-    return fresh_interpreter_time(
-        f"import snakemake.script, {module}, xarray; xarray.DataArray([0.0])", repeat)
-
-
 def run_overhead(scratch, scale: str) -> Result:
     fresh(scratch)
     n_dep, n_scenes = (200, 2000) if scale == "full" else (12, 120)
@@ -151,9 +141,6 @@ def run_overhead(scratch, scale: str) -> Result:
     compute = jobs["s"].sum()
     ratio = wall / (compute / CORES)
     counts = jobs["rule"].value_counts()
-    per_rule = jobs.groupby("rule")["s"].agg(["count", "median", "sum"])
-    fixed = {rule: startup_cost(mod) for rule, mod in _STEP_MODULES.items()}
-    n_fixed = sum(int(counts.get(r, 0)) * fixed[r] for r in fixed)
     per_stage = sum(int(counts.get(r, 0)) for r in ("insitu", "match_scenes", "radar",
                                                     "budget"))
     cpu = jobs["cpu_time"].sum()
@@ -162,14 +149,8 @@ def run_overhead(scratch, scale: str) -> Result:
              f"jobs' CPU time {cpu:.0f} s (mean job load {jobs['mean_load'].mean():.0f} % of a "
              f"core: the machine is shared); wall / (CPU time / cores) = "
              f"{wall / (cpu / CORES):.2f}",
-             "per rule (jobs, median s, total s): " + "; ".join(
-                 f"{r} {int(v['count'])}, {v['median']:.1f}, {v['sum']:.0f}"
-                 for r, v in per_rule.iterrows()),
-             "per-job fixed cost (fresh interpreter + the script's imports + first xarray "
-             "object, median of 3): "
-             + ", ".join(f"{r} {v:.2f} s" for r, v in fixed.items()),
-             f"fixed cost summed over the jobs: {n_fixed:.0f} s = "
-             f"{100 * n_fixed / max(compute, 1e-9):.0f} % of the jobs' own time",
+             per_rule_note(jobs),
+             *fixed_cost_notes(jobs),
              f"batching: {n_dep} deployments in {counts.get('budget', 0)} parts (at most "
              "jobs.max_per_stage jobs per per-deployment stage), so the insitu, "
              f"match_scenes, radar and budget stages ran {per_stage} jobs instead of "

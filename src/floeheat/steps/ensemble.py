@@ -244,7 +244,7 @@ def attribution_table(budget_status: list[str]) -> pd.DataFrame:
         record = read_status(path)
         if not record.get("ok"):
             continue
-        store = xr.open_zarr(record["budget_zarr"], consolidated=True)
+        store = xr.open_zarr(record["budget_zarr"], consolidated=True, chunks=None)
         if "variance_share" not in store:
             continue
         names = ["variance_share", "t_season_member", "t_season", "t_season_lo",

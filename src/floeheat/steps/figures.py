@@ -54,7 +54,8 @@ def _deployment_figures(path: str, seasonal: pd.DataFrame, tmp: Path):
     if not record.get("ok"):
         return None
     dep = record["deployment_id"]
-    ds = xr.open_zarr(record["budget_zarr"], consolidated=True).load()
+    # chunks=None: read as NumPy, without a dask graph per array (the store is small)
+    ds = xr.open_zarr(record["budget_zarr"], consolidated=True, chunks=None).load()
     scene_times = pd.read_csv(record["radar_fractions"], parse_dates=["time"])["time"] \
         if record.get("radar_fractions") else []
     dep_rows = seasonal[seasonal["deployment_id"] == dep]

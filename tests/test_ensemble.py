@@ -238,8 +238,9 @@ def _hourly_members(ds, d, k_ratio, f_radar):
     return np.array(season), np.array(windows)
 
 
+@pytest.mark.parametrize("conductivity", ["salinity", "constant"])
 @pytest.mark.parametrize("weighted", [True, False])
-def test_members_match_an_hour_by_hour_computation(weighted):
+def test_members_match_an_hour_by_hour_computation(weighted, conductivity):
     # every factor at once, a conductivity ratio varying in time (salinity form), the
     # radar f_ow perturbed per member beside a second source, a gap in the storage
     ds = _budget(sources=("radar", "microwave"), radii=(4000.0, 8000.0),
@@ -251,7 +252,7 @@ def test_members_match_an_hour_by_hour_computation(weighted):
     f_radar = rng.uniform(0.0, 0.3, (12, n, 2))
     f_radar[3, 40:60, 1] = np.nan
     t_band = np.linspace(-8.0, -2.0, n)
-    kr = E.conduction_ratio(d.k_ice_W_m_K.values, C.K_ICE_W_M_K, "salinity",
+    kr = E.conduction_ratio(d.k_ice_W_m_K.values, C.K_ICE_W_M_K, conductivity,
                             d.bulk_salinity.values, 4.0, t_band)
     m = E.budget_members(ds, d, k_ratio=kr, chunk_members=5,
                          f_ow_members=lambda sl, only: {"radar": f_radar[sl]})

@@ -359,24 +359,53 @@ class _Static:
         d_q = np.stack([np.diff(q_st), np.diff(to_lo), np.diff(to_hi)], axis=1)  # (n, 3)
         self.q_window = np.add.reduceat(d_q, self.first, axis=0)  # (window, 3)
         self.fm = np.asarray(budget["f_ow"].values[1:], float)  # (n, source, radius)
+        # The f_ow-weighted sums as one matrix product: column k of ``self._window`` picks
+        # the intervals of window k as np.add.reduceat does (a window without an interval
+        # takes its first index alone), the last column the whole season.
+        n, k = self.dt.size, self.first.size
+        window = np.zeros((n, k + 1))
+        ends = np.append(self.first[1:], n)
+        for j, (a, b) in enumerate(zip(self.first, ends)):
+            window[a:b if b > a else a + 1, j] = 1.0
+        window[:, k] = 1.0
+        self._window = window
+        series = np.stack([self.swdt, self.d_b, self.dt, self.d_c])  # (4, n): a_i(t)
+        missing = np.isnan(series)
+        clean = np.where(missing, 0.0, series)
+        self._static = clean @ window  # (4, k + 1): sum of a_i over each window, the season
+        self._static_nan = (missing.astype(float) @ window) > 0
+        # (n, 4 (k + 1)): a_i(t) on the columns of window, series after series
+        self._weighted = (clean[:, :, None] * window[None]).transpose(1, 0, 2).reshape(n, -1)
         self.central = self.sums(self.fm, axis=0)
 
     def sums(self, fm: np.ndarray, axis: int) -> dict:
         """Window and season sums of the f_ow-weighted terms of f_ow with the budget's
         intervals on ``axis``: per term, (the window sums, that axis replaced by the
-        window; the season sums, that axis summed)."""
-        shape = [1] * fm.ndim
-        shape[axis] = self.dt.size
+        window; the season sums, that axis summed). A sum holding a NaN is NaN.
 
-        def series(x):
-            return np.reshape(x, shape)
+        Every term is a_i(t) or f(t) a_i(t) or (1 - f(t)) a_i(t) for a series a_i of the
+        central budget, so each is a sum of a_i (precomputed) and one of f a_i: all of
+        them one matrix product of f with the series laid on the windows.
+        """
+        x = np.moveaxis(np.asarray(fm, float), axis, -1)  # (..., n)
+        k1 = self._window.shape[1]
+        missing = np.isnan(x)
+        f_nan = (missing.astype(float) @ self._window) > 0 if missing.any() else \
+            np.zeros(x.shape[:-1] + (k1,), dtype=bool)
+        prod = (np.where(missing, 0.0, x) @ self._weighted).reshape(x.shape[:-1] + (4, k1))
+        static, static_nan = self._static, self._static_nan
 
-        w = (1.0 - fm) if self.weight else np.ones_like(fm)
-        terms = {"ow": fm * series(self.swdt), "den": (1.0 - fm) * series(self.swdt),
-                 "b": w * series(self.d_b), "dt": w * series(self.dt),
-                 "c": w * series(self.d_c)}
-        return {k: (np.add.reduceat(v, self.first, axis=axis), np.sum(v, axis=axis))
-                for k, v in terms.items()}
+        def out(value, nan):
+            return np.where(nan, np.nan, value)
+
+        terms = {"ow": out(prod[..., 0, :], f_nan | static_nan[0]),
+                 "den": out(static[0] - prod[..., 0, :], f_nan | static_nan[0])}
+        for i, key in ((1, "b"), (2, "dt"), (3, "c")):
+            if self.weight:  # (1 - f) a_i
+                terms[key] = out(static[i] - prod[..., i, :], f_nan | static_nan[i])
+            else:  # a_i alone, on the shape of f
+                terms[key] = np.broadcast_to(out(static[i], static_nan[i]), prod[..., i, :].shape)
+        return {key: (np.moveaxis(v[..., :-1], -1, axis), v[..., -1]) for key, v in terms.items()}
 
 
 def _kernel(st: _Static, per_source: Mapping[int, dict], albedo, bias, e_ratio, k_ratio,

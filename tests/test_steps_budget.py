@@ -147,3 +147,37 @@ def test_no_gridded_shortwave_and_no_csv_names_the_fix(part):
     msg = str(got["d1"].error)
     assert "has no shortwave" in msg and "shortwave_file" in msg
     assert got["d1"].microwave_daily is None or got["d1"].error is not None
+
+
+# --------------------------------------------------------------------------- budget store
+
+def _files(root) -> dict:
+    return {p.relative_to(root).as_posix(): p.read_bytes()
+            for p in sorted(root.rglob("*")) if p.is_file()}
+
+
+def test_budget_store_is_the_store_zarr_itself_writes_to_a_folder(tmp_path):
+    # reference: zarr-python's own local-folder writer (through xarray.Dataset.to_zarr)
+    t = pd.date_range("2021-07-01", periods=5, freq="D")
+    ds = xr.Dataset(
+        {"q_ow": (("time", "source", "radius"), np.arange(20.0).reshape(5, 2, 2),
+                  {"units": "MJ m-2"}),
+         "qc_ok": (("source", "radius"), np.array([[True, False], [False, True]])),
+         "reason": (("source", "radius"), np.array([["", "gap"], ["x", ""]]))},
+        coords={"time": t, "source": ["radar", "microwave"], "radius": [2000.0, 4000.0]},
+        attrs={"deployment_id": "B1"})
+    SB.write_budget_store(ds, tmp_path / "budget.zarr")
+    # what write_budget_store hands to Zarr: strings to attributes, booleans to int8
+    ref = ds.drop_vars("reason")
+    ref.attrs["reason"] = '{"radar/2000": "", "radar/4000": "gap", ' \
+                          '"microwave/2000": "x", "microwave/4000": ""}'
+    ref["qc_ok"] = ref["qc_ok"].astype("int8")
+    ref["source"] = ref["source"].astype(str)
+    ref.to_zarr(tmp_path / "ref.zarr", zarr_format=3, consolidated=True, mode="w")
+    mine, theirs = _files(tmp_path / "budget.zarr"), _files(tmp_path / "ref.zarr")
+    assert mine.keys() == theirs.keys()
+    assert all(mine[k] == theirs[k] for k in mine)
+    back = xr.open_zarr(tmp_path / "budget.zarr", consolidated=True, chunks=None)
+    np.testing.assert_array_equal(back["q_ow"].values, ds["q_ow"].values)
+    assert back.attrs["reason"] == ref.attrs["reason"]
+    assert not list(tmp_path.glob(".budget.zarr.partial-*"))

@@ -18,7 +18,8 @@ from floeheat.budget import assemble_budget
 from floeheat.climatology import bootstrap_median_by_array
 from floeheat.icebase import ice_conductivity, ice_enthalpy_bl99
 from floeheat.openwater import radar_time_series
-from floeheat.steps.ensemble import budget_ensemble, read_window_members, write_window_members
+from floeheat.steps.ensemble import (attribution_table, budget_ensemble, read_window_members,
+                                     write_attribution_rows, write_window_members)
 from floeheat.synth.calibration import analyse_case, calibration_case
 
 T0 = pd.Timestamp("2020-06-01")
@@ -310,6 +311,31 @@ def test_budget_ensemble_adds_members_and_keeps_central(tmp_path):
                             "window_start": pd.to_datetime(ds.window_start.values)})
     mv = read_window_members([str(status)], windows.iloc[::-1])
     np.testing.assert_allclose(mv, table.iloc[::-1, 3:].to_numpy(), rtol=1e-9)
+
+
+def test_attribution_rows_gathered_from_files_equal_those_read_from_the_stores(tmp_path):
+    from floeheat.steps.budget import write_budget_store
+
+    statuses = []
+    for dep, seed in (("B2", 5), ("B1", 3)):
+        ds = _budget(sources=("radar", "microwave"), radii=(4000.0, 8000.0))
+        out, _ = budget_ensemble(ds, {"members": 24, "seed": seed, "factors": FACTORS},
+                                 deployment_id=dep, ice_settings=CENTRAL,
+                                 sensor_spacing_m=0.02)
+        write_budget_store(out, tmp_path / dep / "budget.zarr")
+        rec = write_attribution_rows(out, tmp_path / dep / "attribution.csv", dep)
+        for name, extra in (("with", rec), ("without", {})):
+            status = tmp_path / dep / f"{name}.json"
+            status.write_text(json.dumps({"ok": True, "deployment_id": dep, **extra,
+                                          "budget_zarr": str(tmp_path / dep / "budget.zarr")}))
+        statuses.append(tmp_path / dep)
+    gathered = attribution_table([str(p / "with.json") for p in statuses])
+    from_stores = attribution_table([str(p / "without.json") for p in statuses])
+    assert len(gathered) == 8 and list(gathered["deployment_id"].unique()) == ["B1", "B2"]
+    pd.testing.assert_frame_equal(gathered.reset_index(drop=True),
+                                  from_stores.reset_index(drop=True))
+    shares = gathered.filter(like="share_").sum(axis=1)
+    np.testing.assert_allclose(shares, 1.0)
 
 
 def test_no_members_switches_the_ensemble_off():

@@ -27,7 +27,8 @@ from floeheat.io.gridded import read_shortwave_csv
 from floeheat.microwave import fraction_at_buoys, interpolate_daily
 from floeheat.openwater import per_scene_arrays, radar_time_series
 from floeheat.shortwave import sample_at_tracks
-from floeheat.steps.ensemble import budget_ensemble, write_window_members
+from floeheat.steps.ensemble import (budget_ensemble, write_attribution_rows,
+                                     write_window_members)
 from floeheat.steps.parts import run_part
 from floeheat.steps.scenes import position_at, read_track
 from floeheat.steps.status import StageFailed, atomic_path, attempt, read_status, run_stage
@@ -400,7 +401,8 @@ def _work(row: dict, insitu: dict, radar: dict | None, forcing: DeploymentForcin
             "radar_fractions": (radar or {}).get("radar_fractions", ""),
             "floe_context": (radar or {}).get("floe_context", ""),
             "sources": sorted(series),
-            **write_window_members(window_members, work_dir / "window_members.csv", dep)}
+            **write_window_members(window_members, work_dir / "window_members.csv", dep),
+            **write_attribution_rows(ds, work_dir / "attribution.csv", dep)}
 
 
 def run_budget(row: dict, insitu_status: str, radar_status: str, forcing: DeploymentForcing,

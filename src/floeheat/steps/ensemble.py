@@ -23,7 +23,8 @@ from floeheat.openwater import per_scene_arrays
 from floeheat.steps.status import atomic_path, read_status
 
 __all__ = ["budget_ensemble", "write_window_members", "read_window_members",
-           "attribution_table", "write_attribution"]
+           "attribution_rows", "write_attribution_rows", "attribution_table",
+           "write_attribution"]
 
 log = logging.getLogger(__name__)
 
@@ -237,38 +238,73 @@ def read_window_members(budget_status: list[str], windows: pd.DataFrame) -> np.n
     return merged[cols].to_numpy(float)
 
 
-def attribution_table(budget_status: list[str]) -> pd.DataFrame:
-    """One row per deployment x source x radius: the interval and each factor's share."""
+#: Variables of budget.zarr that the attribution rows are made of.
+ATTRIBUTION_VARIABLES = ("variance_share", "t_season_member", "t_season", "t_season_lo",
+                         "t_season_hi")
+
+
+def attribution_rows(ds: xr.Dataset, deployment_id: str) -> pd.DataFrame:
+    """One deployment's rows of attribution.csv, from its budget Dataset: per source x
+    radius with a season value, the interval, the members' spread and each factor's
+    share (no rows without an ensemble)."""
+    cols = list(ATTRIBUTION_KEYS) + [f"share_{f}" for f in E.FACTORS]
+    if "variance_share" not in ds:
+        return pd.DataFrame(columns=cols)
+    share = ds["variance_share"]
+    t_m = np.asarray(ds["t_season_member"].values, float)
+    t, t_lo, t_hi = (np.asarray(ds[k].values, float)
+                     for k in ("t_season", "t_season_lo", "t_season_hi"))
     rows = []
+    for i, s in enumerate(ds["source"].values):
+        for j, r in enumerate(ds["radius"].values):
+            if not np.isfinite(float(t[i, j])):
+                continue
+            row = {"deployment_id": deployment_id, "source": str(s),
+                   "radius_m": float(r), "t_ice": float(t[i, j]),
+                   "t_ice_lo": float(t_lo[i, j]),
+                   "t_ice_hi": float(t_hi[i, j]),
+                   "t_ice_sd": float(np.nanstd(t_m[:, i, j]))
+                   if np.isfinite(t_m[:, i, j]).any() else float("nan"),
+                   "n_members": int(np.isfinite(t_m[:, i, j]).sum())}
+            for k, f in enumerate(share["factor"].values):
+                row[f"share_{f}"] = float(share.values[k, i, j])
+            rows.append(row)
+    return pd.DataFrame(rows).reindex(columns=cols) if rows else pd.DataFrame(columns=cols)
+
+
+def write_attribution_rows(ds: xr.Dataset, path: Path, deployment_id: str) -> dict:
+    """Write one deployment's attribution rows (CSV at full precision, atomically), for
+    the run-wide table to gather without opening the store; returns the product entry."""
+    with atomic_path(Path(path)) as tmp:
+        attribution_rows(ds, deployment_id).to_csv(tmp, index=False, lineterminator="\n")
+    return {"attribution": str(path)}
+
+
+def attribution_table(budget_status: list[str]) -> pd.DataFrame:
+    """One row per deployment x source x radius: the interval and each factor's share.
+
+    Gathers the rows each budget wrote (``attribution`` in its status record); a record
+    without them (a results folder from an earlier version) has its store read.
+    """
+    cols = list(ATTRIBUTION_KEYS) + [f"share_{f}" for f in E.FACTORS]
+    parts = []
     for path in sorted(budget_status):
         record = read_status(path)
         if not record.get("ok"):
             continue
-        store = xr.open_zarr(record["budget_zarr"], consolidated=True, chunks=None)
-        if "variance_share" not in store:
-            continue
-        names = ["variance_share", "t_season_member", "t_season", "t_season_lo",
-                 "t_season_hi"]
-        ds = store[names].load()  # one read per array, not one per value
-        share = ds["variance_share"]
-        t_m = ds["t_season_member"].values
-        t, t_lo, t_hi = (ds[k].values for k in ("t_season", "t_season_lo", "t_season_hi"))
-        for i, s in enumerate(ds["source"].values):
-            for j, r in enumerate(ds["radius"].values):
-                if not np.isfinite(float(t[i, j])):
-                    continue
-                row = {"deployment_id": record["deployment_id"], "source": str(s),
-                       "radius_m": float(r), "t_ice": float(t[i, j]),
-                       "t_ice_lo": float(t_lo[i, j]),
-                       "t_ice_hi": float(t_hi[i, j]),
-                       "t_ice_sd": float(np.nanstd(t_m[:, i, j]))
-                       if np.isfinite(t_m[:, i, j]).any() else float("nan"),
-                       "n_members": int(np.isfinite(t_m[:, i, j]).sum())}
-                for k, f in enumerate(share["factor"].values):
-                    row[f"share_{f}"] = float(share.values[k, i, j])
-                rows.append(row)
-    cols = list(ATTRIBUTION_KEYS) + [f"share_{f}" for f in E.FACTORS]
-    table = pd.DataFrame(rows).reindex(columns=cols) if rows else pd.DataFrame(columns=cols)
+        if record.get("attribution"):
+            part = pd.read_csv(record["attribution"], dtype={"deployment_id": str,
+                                                              "source": str})
+        else:
+            store = xr.open_zarr(record["budget_zarr"], consolidated=True, chunks=None)
+            if "variance_share" not in store:
+                continue
+            # one read per array, not one per value
+            part = attribution_rows(store[list(ATTRIBUTION_VARIABLES)].load(),
+                                    record["deployment_id"])
+        if len(part):
+            parts.append(part.reindex(columns=cols))
+    table = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame(columns=cols)
     return table.sort_values(["deployment_id", "source", "radius_m"], kind="stable")
 
 

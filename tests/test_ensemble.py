@@ -18,8 +18,13 @@ from floeheat.budget import assemble_budget
 from floeheat.climatology import bootstrap_median_by_array
 from floeheat.icebase import ice_conductivity, ice_enthalpy_bl99
 from floeheat.openwater import radar_time_series
-from floeheat.steps.ensemble import (attribution_table, budget_ensemble, read_window_members,
-                                     write_attribution_rows, write_window_members)
+from floeheat.steps.ensemble import (
+    attribution_table,
+    budget_ensemble,
+    read_window_members,
+    write_attribution_rows,
+    write_window_members,
+)
 from floeheat.synth.calibration import analyse_case, calibration_case
 
 T0 = pd.Timestamp("2020-06-01")

@@ -27,8 +27,7 @@ from floeheat.io.gridded import read_shortwave_csv
 from floeheat.microwave import fraction_at_buoys, interpolate_daily
 from floeheat.openwater import per_scene_arrays, radar_time_series
 from floeheat.shortwave import sample_at_tracks
-from floeheat.steps.ensemble import (budget_ensemble, write_attribution_rows,
-                                     write_window_members)
+from floeheat.steps.ensemble import budget_ensemble, write_attribution_rows, write_window_members
 from floeheat.steps.parts import run_part
 from floeheat.steps.scenes import position_at, read_track
 from floeheat.steps.status import StageFailed, atomic_path, attempt, read_status, run_stage

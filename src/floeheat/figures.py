@@ -17,7 +17,7 @@ import pandas as pd  # noqa: E402
 import xarray as xr  # noqa: E402
 
 __all__ = ["PALETTE", "budget_figure", "openwater_figure", "floe_context_figure",
-           "transmittance_figure",
+           "transmittance_figure", "fixed_margins", "fit_beside_legends", "MARGINS_IN",
            "track_map_figure", "climatology_figure", "attribution_figure", "save_figure"]
 
 #: Okabe & Ito (2008), "Color Universal Design": colour-blind-safe qualitative colours.
@@ -25,10 +25,53 @@ PALETTE = ("#0072B2", "#E69F00", "#009E73", "#D55E00", "#CC79A7", "#56B4E9", "#F
            "#000000")
 
 
-def save_figure(fig, path) -> None:
-    """Save a figure as PNG without time stamps or version strings (same bytes each run)."""
-    fig.savefig(path, dpi=110, metadata={"Software": None}, bbox_inches="tight")
+#: Margins of the per-deployment figures [inch]: the y label and tick labels (left), the x
+#: tick labels turned by 30 degrees and the x label (bottom), the title (top). Their
+#: legends sit right of the axes and widen the figure (:func:`fit_beside_legends`).
+MARGINS_IN = {"left": 0.95, "right": 0.15, "bottom": 1.05, "top": 0.4}
+
+
+def save_figure(fig, path, *, tight: bool = True) -> None:
+    """Save a figure as PNG without time stamps or version strings (same bytes each run).
+
+    ``tight``: crop to what is drawn (``bbox_inches="tight"``, which draws the figure a
+    second time to find it); otherwise the figure keeps its own margins
+    (:func:`fixed_margins`), widened to the legends right of its axes, and is drawn once.
+    """
+    if tight:
+        fig.savefig(path, dpi=110, metadata={"Software": None}, bbox_inches="tight")
+    else:
+        fit_beside_legends(fig)
+        fig.savefig(path, dpi=110, metadata={"Software": None})
     plt.close(fig)
+
+
+def fixed_margins(fig, **subplots) -> None:
+    """Set the margins :data:`MARGINS_IN` in inches, whatever the figure's size
+    (``subplots``: further :meth:`~matplotlib.figure.Figure.subplots_adjust` settings)."""
+    w, h = fig.get_size_inches()
+    fig.subplots_adjust(left=MARGINS_IN["left"] / w, right=1.0 - MARGINS_IN["right"] / w,
+                        bottom=MARGINS_IN["bottom"] / h, top=1.0 - MARGINS_IN["top"] / h,
+                        **subplots)
+
+
+def fit_beside_legends(fig, pad_in: float = 0.1) -> None:
+    """Widen the figure so that the legends right of its axes fit, every axes keeping its
+    size and place in inches (only the legends' own text is laid out, not the axes')."""
+    legends = [leg for ax in fig.axes if (leg := ax.get_legend()) is not None]
+    if not legends:
+        return
+    renderer = fig.canvas.get_renderer()
+    w, h = fig.get_size_inches()
+    right_in = max(leg.get_window_extent(renderer).x1 for leg in legends) / fig.dpi
+    extra = right_in + pad_in - w
+    if extra <= 0:
+        return
+    boxes = [ax.get_position() for ax in fig.axes]
+    fig.set_size_inches(w + extra, h)
+    scale = w / (w + extra)
+    for ax, box in zip(fig.axes, boxes):
+        ax.set_position([box.x0 * scale, box.y0, box.width * scale, box.height])
 
 
 def _legend(ax, **kwargs):
@@ -75,6 +118,7 @@ def budget_figure(ds: xr.Dataset, title: str):
         ax.tick_params(axis="x", labelrotation=30)
     axes[0][0].set_ylabel("cumulative energy (MJ m$^{-2}$)")
     _legend(axes[0][-1], fontsize=8)
+    fixed_margins(fig)
     return fig
 
 
@@ -102,6 +146,7 @@ def openwater_figure(ds: xr.Dataset, scene_times, title: str):
     ax.set_title(f"{title}: open water")
     _legend(ax, fontsize=8)
     ax.tick_params(axis="x", labelrotation=30)
+    fixed_margins(fig)
     return fig
 
 
@@ -136,6 +181,7 @@ def floe_context_figure(floes: pd.DataFrame, title: str):
     axes[-1].set_xlabel("time (UTC)")
     axes[-1].tick_params(axis="x", labelrotation=30)
     axes[0].set_title(f"{title}: the buoy's floe within {radius_km:g} km")
+    fixed_margins(fig)
     return fig
 
 
@@ -163,6 +209,7 @@ def transmittance_figure(ds: xr.Dataset, seasonal: pd.DataFrame, title: str):
     ax.set_title(f"{title}: transmittance")
     _legend(ax, fontsize=8)
     ax.tick_params(axis="x", labelrotation=30)
+    fixed_margins(fig)
     return fig
 
 

@@ -1,5 +1,7 @@
 """Stage ``figures``: every figure of a run in one job (batched, so reruns stay cheap;
-the per-deployment figures drawn by as many processes as the job has threads)."""
+the per-deployment figures, and beside them the basin figures drawn from the tables
+alone, by as many processes as the job has threads; the track map, which needs every
+deployment's track, last)."""
 
 from __future__ import annotations
 
@@ -69,40 +71,69 @@ def _deployment_figures(path: str, seasonal: pd.DataFrame, tmp: Path):
     for name, figure in figures:
         target = tmp / "deployments" / dep / f"{name}.png"
         target.parent.mkdir(parents=True, exist_ok=True)
-        fig.save_figure(figure, target)
+        # fixed margins: drawn once (a tight crop would draw each figure twice)
+        fig.save_figure(figure, target, tight=False)
         written.append(str(target.relative_to(tmp)))
     return written, dep, pd.read_csv(record["track"])
 
 
 def _each_deployment(budget_status: list[str], seasonal: pd.DataFrame, tmp: Path,
-                     processes: int) -> list:
+                     processes: int, beside=None) -> tuple[list, list[str]]:
     """The deployments' figures in status order, drawn by ``processes`` worker processes
-    (matplotlib draws on one core; the per-deployment figures are independent)."""
+    (matplotlib draws on one core; the per-deployment figures are independent), and
+    ``beside()`` (the figures that need none of them) drawn among them: returns
+    ``(per deployment, what beside() wrote)``."""
     paths = sorted(budget_status)
     if processes <= 1 or len(paths) < 2:
-        return [_deployment_figures(p, seasonal, tmp) for p in paths]
+        return [_deployment_figures(p, seasonal, tmp) for p in paths], \
+            (beside() if beside else [])
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor
 
     # fork: the workers inherit the imported modules instead of importing them again
     with ProcessPoolExecutor(max_workers=min(processes, len(paths)),
                              mp_context=multiprocessing.get_context("fork")) as pool:
-        return list(pool.map(_deployment_figures, paths, [seasonal] * len(paths),
-                             [tmp] * len(paths), chunksize=max(1, len(paths) // (4 * processes))))
+        # submitted first, so that it runs beside the deployments, not after them
+        other = pool.submit(beside) if beside else None
+        done = list(pool.map(_deployment_figures, paths, [seasonal] * len(paths),
+                             [tmp] * len(paths),
+                             chunksize=max(1, len(paths) // (4 * processes))))
+        return done, (other.result() if other else [])
+
+
+def _basin_figures(tmp: Path, clim: pd.DataFrame, attribution_csv: str | None,
+                   checks: dict | None) -> list[str]:
+    """The basin figures drawn from the tables alone (all but the track map)."""
+    written = []
+    fig.save_figure(fig.climatology_figure(clim), tmp / "basin_climatology.png")
+    written.append("basin_climatology.png")
+    if attribution_csv:
+        rows, label = _attribution_rows(attribution_csv)
+        fig.save_figure(fig.attribution_figure(rows, label), tmp / "basin_attribution.png")
+        written.append("basin_attribution.png")
+    if checks:
+        written.extend(_check_figures(tmp, checks, clim))
+    return written
 
 
 def run_figures(budget_status: list[str], seasonal_csv: str, climatology_csv: str,
                 out_dir: str, attribution_csv: str | None = None,
                 checks: dict | None = None, processes: int = 1) -> list[str]:
     """Draw the per-deployment and basin figures into ``out_dir`` (replaced whole); the
-    per-deployment figures in ``processes`` worker processes."""
+    per-deployment figures and those drawn from the tables alone in ``processes``
+    worker processes."""
+    import functools
+
     seasonal = pd.read_csv(seasonal_csv)
     clim = pd.read_csv(climatology_csv)
     written: list[str] = []
     tracks, t_season, labels, lats = {}, {}, set(), []
     with atomic_path(Path(out_dir)) as tmp:
         tmp.mkdir(parents=True)
-        for done in _each_deployment(budget_status, seasonal, tmp, processes):
+        per_deployment, basin = _each_deployment(
+            budget_status, seasonal, tmp, processes,
+            beside=functools.partial(_basin_figures, tmp, clim, attribution_csv, checks))
+        for done in per_deployment:
             if done is None:
                 continue
             files, dep, track = done
@@ -118,14 +149,7 @@ def run_figures(budget_status: list[str], seasonal_csv: str, climatology_csv: st
             fig.save_figure(fig.track_map_figure(tracks, t_season, crs, label),
                             tmp / "basin_tracks.png")
             written.append("basin_tracks.png")
-        fig.save_figure(fig.climatology_figure(clim), tmp / "basin_climatology.png")
-        written.append("basin_climatology.png")
-        if attribution_csv:
-            rows, label = _attribution_rows(attribution_csv)
-            fig.save_figure(fig.attribution_figure(rows, label), tmp / "basin_attribution.png")
-            written.append("basin_attribution.png")
-        if checks:
-            written.extend(_check_figures(tmp, checks, clim))
+        written.extend(basin)
     log.info("figures: %d written", len(written))
     return written
 

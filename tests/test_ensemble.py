@@ -341,6 +341,10 @@ def test_attribution_rows_gathered_from_files_equal_those_read_from_the_stores(t
                                   from_stores.reset_index(drop=True))
     shares = gathered.filter(like="share_").sum(axis=1)
     np.testing.assert_allclose(shares, 1.0)
+    # without radar scenes the radar factors move nothing: a share of exactly 0, not the
+    # rounding noise of a variance of equal values
+    assert (gathered["share_coverage_threshold"] == 0.0).all()
+    assert (gathered["share_f_ow_sampling"] == 0.0).all()
 
 
 def test_no_members_switches_the_ensemble_off():

@@ -54,6 +54,7 @@ __all__ = [
     "conduction_ratio",
     "budget_members",
     "interval",
+    "member_variance",
     "variance_shares",
     "bootstrap_median_with_members",
 ]
@@ -599,6 +600,27 @@ def interval(values, level: float = 0.90, axis: int = 0):
     return lo, hi
 
 
+def member_variance(values, axis: int = 0) -> np.ndarray:
+    """Variance over the finite members (``numpy.nanvar``), exactly 0 where they are all
+    equal: the mean of equal values is not always that value in floating point, which
+    would give a factor that cannot move a value a variance of rounding noise.
+
+    Examples
+    --------
+    >>> v = np.full(200, 0.01263917235)
+    >>> bool(np.nanvar(v) > 0), float(member_variance(v))
+    (True, 0.0)
+    """
+    import warnings
+
+    v = np.asarray(values, float)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        var = np.nanvar(v, axis=axis)
+        equal = np.nanmax(v, axis=axis) == np.nanmin(v, axis=axis)
+    return np.where(equal, 0.0, var)
+
+
 def variance_shares(one_at_a_time: Mapping[str, np.ndarray], axis: int = 0) -> dict:
     """Variance share of each factor: its one-at-a-time variance over their sum.
 
@@ -619,11 +641,7 @@ def variance_shares(one_at_a_time: Mapping[str, np.ndarray], axis: int = 0) -> d
     >>> {k: round(float(v), 2) for k, v in s.items()}
     {'a': 0.8, 'b': 0.2}
     """
-    import warnings
-
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)
-        var = {k: np.nanvar(np.asarray(v, float), axis=axis) for k, v in one_at_a_time.items()}
+    var = {k: member_variance(v, axis=axis) for k, v in one_at_a_time.items()}
     total = sum(var.values())
     with np.errstate(all="ignore"):
         return {k: np.where(total > 0, v / total, np.nan) for k, v in var.items()}

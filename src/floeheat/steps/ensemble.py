@@ -10,7 +10,6 @@ window t-interval then stays).
 from __future__ import annotations
 
 import logging
-import warnings
 from pathlib import Path
 
 import numpy as np
@@ -169,9 +168,7 @@ def budget_ensemble(ds: xr.Dataset, settings: dict, *, deployment_id: str,
                                {"units": "1", "long_name": "members with a season value"})
     if varied:
         out = out.assign_coords(factor=("factor", np.array(varied, dtype=str)))
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", RuntimeWarning)
-            var = np.stack([np.nanvar(alone[f], axis=0) for f in varied])
+        var = np.stack([E.member_variance(alone[f], axis=0) for f in varied])
         out["variance_share"] = (("factor", "source", "radius"),
                                  np.stack([shares[f] for f in varied]), {
                                      "units": "1",

@@ -31,6 +31,7 @@ __all__ = [
     "depth_and_distance_to_isobath",
     "daily_drift_speed",
     "separation_change",
+    "separation_change_projected",
     "residual_outliers",
     "window_time_flags",
 ]
@@ -249,23 +250,28 @@ def separation_change(time_a, lat_a, lon_a, time_b, lat_b, lon_b, start, end) ->
     >>> bool(855 < d < 880)
     True
     """
+    from floeheat.track import project_track
+
+    return separation_change_projected(project_track(time_a, lat_a, lon_a),
+                                       project_track(time_b, lat_b, lon_b), start, end)
+
+
+def separation_change_projected(track_a, track_b, start, end) -> float:
+    """:func:`separation_change` of two tracks projected once by
+    :func:`floeheat.track.project_track` (for many periods of the same pair)."""
     from pyproj import Geod
 
-    from floeheat.track import interpolate_positions
+    from floeheat.track import positions_on
 
-    t0 = max(pd.Timestamp(start), pd.Timestamp(np.asarray(time_a)[0]),
-             pd.Timestamp(np.asarray(time_b)[0]))
-    t1 = min(pd.Timestamp(end), pd.Timestamp(np.asarray(time_a)[-1]),
-             pd.Timestamp(np.asarray(time_b)[-1]))
+    if track_a.span is None or track_b.span is None:
+        return float("nan")
+    t0 = max(pd.Timestamp(start), pd.Timestamp(track_a.span[0]), pd.Timestamp(track_b.span[0]))
+    t1 = min(pd.Timestamp(end), pd.Timestamp(track_a.span[1]), pd.Timestamp(track_b.span[1]))
     if t1 - t0 < pd.Timedelta(hours=1):
         return float("nan")
     grid = pd.date_range(t0, t1, freq="h").values
-    lat_pa, lon_pa, *_ = interpolate_positions(np.asarray(time_a, "datetime64[ns]"),
-                                               np.asarray(lat_a, float),
-                                               np.asarray(lon_a, float), grid)
-    lat_pb, lon_pb, *_ = interpolate_positions(np.asarray(time_b, "datetime64[ns]"),
-                                               np.asarray(lat_b, float),
-                                               np.asarray(lon_b, float), grid)
+    lat_pa, lon_pa, *_ = positions_on(track_a, grid)
+    lat_pb, lon_pb, *_ = positions_on(track_b, grid)
     _, _, d = Geod(ellps="WGS84").inv(lon_pa, lat_pa, lon_pb, lat_pb)
     d = np.asarray(d, dtype=float)
     d = d[np.isfinite(d)]

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import threading
 from collections.abc import Iterable
+from typing import NamedTuple
 
 import numpy as np
 import pandas as pd
@@ -30,6 +31,9 @@ __all__ = [
     "to_working_crs",
     "interpolate_track",
     "interpolate_positions",
+    "project_track",
+    "positions_on",
+    "ProjectedTrack",
     "clean_track",
 ]
 
@@ -327,24 +331,44 @@ def to_working_crs(latitude_deg, longitude_deg, crs=C.CRS_WORKING_NORTH):
     return np.asarray(x, dtype=float), np.asarray(y, dtype=float)
 
 
-def interpolate_positions(time, latitude_deg, longitude_deg, target_time, crs=None,
-                          max_gap=None):
-    """The numbers of :func:`interpolate_track` as plain arrays: ``(latitude,
-    longitude, x_m, y_m, crs)`` (no xarray objects, for per-scene loops and small jobs).
-    """
-    t = _ns(time).astype(np.int64).astype(float) * _NS
+class ProjectedTrack(NamedTuple):
+    """A track's valid fixes in a projected CRS (:func:`project_track`): times [s since
+    1970], x and y [m] and the CRS, for interpolating it at many sets of times; ``span``
+    the first and last time given (fixes with or without a position), or None."""
+
+    t_s: np.ndarray
+    x_m: np.ndarray
+    y_m: np.ndarray
+    crs: object
+    span: tuple | None = None
+
+
+def project_track(time, latitude_deg, longitude_deg, crs=None) -> ProjectedTrack:
+    """The valid fixes of a track projected once (the working CRS of its hemisphere
+    unless ``crs`` is given), for :func:`positions_on`."""
+    given = _ns(time)
+    span = (given[0], given[-1]) if given.size else None
+    t = given.astype(np.int64).astype(float) * _NS
     lat = np.asarray(latitude_deg, dtype=float).ravel()
     lon = np.asarray(longitude_deg, dtype=float).ravel()
-    td = _ns(target_time)
-    ts = td.astype(np.int64).astype(float) * _NS
     ok = np.isfinite(lat) & np.isfinite(lon) & np.isfinite(t)
     t, lat, lon = t[ok], lat[ok], lon[ok]
     if crs is None:
         crs = working_crs(hemisphere(lat))
+    if t.size == 0:
+        return ProjectedTrack(t, t.copy(), t.copy(), crs, span)
+    x, y = to_working_crs(lat, lon, crs)
+    return ProjectedTrack(t, x, y, crs, span)
+
+
+def positions_on(track: ProjectedTrack, target_time, max_gap=None):
+    """:func:`interpolate_positions` of a track projected by :func:`project_track`."""
+    t, x, y, crs, _ = track
+    td = _ns(target_time)
+    ts = td.astype(np.int64).astype(float) * _NS
     xo = np.full(ts.shape, np.nan)
     yo = np.full(ts.shape, np.nan)
     if t.size >= 1:
-        x, y = to_working_crs(lat, lon, crs)
         inside = (ts >= t[0]) & (ts <= t[-1])
         xo[inside] = np.interp(ts[inside], t, x)
         yo[inside] = np.interp(ts[inside], t, y)
@@ -358,6 +382,17 @@ def interpolate_positions(time, latitude_deg, longitude_deg, target_time, crs=No
     lono = np.where(np.isfinite(xo), _wrap_lon(lono), np.nan)
     lato = np.where(np.isfinite(yo), lato, np.nan)
     return lato, lono, xo, yo, crs
+
+
+def interpolate_positions(time, latitude_deg, longitude_deg, target_time, crs=None,
+                          max_gap=None):
+    """The numbers of :func:`interpolate_track` as plain arrays: ``(latitude,
+    longitude, x_m, y_m, crs)`` (no xarray objects, for per-scene loops and small jobs).
+    A track interpolated at many sets of times is projected once with
+    :func:`project_track` and interpolated with :func:`positions_on`.
+    """
+    return positions_on(project_track(time, latitude_deg, longitude_deg, crs), target_time,
+                        max_gap)
 
 
 def interpolate_track(time, latitude_deg, longitude_deg, target_time, crs=None,

@@ -134,6 +134,9 @@ def run_screen(budget_status: list[str], bathymetry: list[str], screen_csv: str,
         columns=["deployment_id", "array_id", "source", "radius_m", "window_start",
                  "window_end", "q_tr_MJ"])
 
+    # each track projected once, for every window and every mate it is compared with
+    projected = {dep: trk.project_track(t["time"].values, t["latitude"].values,
+                                        t["longitude"].values) for dep, t in tracks.items()}
     along, flag_parts = [], []
     for dep, track in tracks.items():
         hemi = trk.hemisphere(track["latitude"].values)
@@ -159,11 +162,8 @@ def run_screen(budget_status: list[str], bathymetry: list[str], screen_csv: str,
         for start, end in zip(mine["window_start"], mine["window_end"]):
             # every source and radius shares the window's period: computed once
             if (start, end) not in by_period:
-                changes = [scr.separation_change(
-                    track["time"].values, track["latitude"].values,
-                    track["longitude"].values, tracks[m]["time"].values,
-                    tracks[m]["latitude"].values, tracks[m]["longitude"].values, start, end)
-                    for m in mates]
+                changes = [scr.separation_change_projected(projected[dep], projected[m],
+                                                           start, end) for m in mates]
                 changes = [c for c in changes if np.isfinite(c)]
                 by_period[start, end] = max(changes) if changes else float("nan")
             sep.append(by_period[start, end])

@@ -284,7 +284,7 @@ def write_budget_store(ds: xr.Dataset, path: Path) -> None:
     """Write the budget Dataset as a consolidated Zarr (format 3) store, atomically.
 
     String variables (per-source reasons) go to attributes; every chunk spans the whole
-    series (the store is read whole, by figures and tables). The store is built in
+    series (the store is read whole, by the figures). The store is built in
     memory and then written out as files, the same files Zarr writes to a folder: Zarr
     passes every step of a local write through its event-loop thread, which costs more
     than the writes themselves for a store of many small arrays.

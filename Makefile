@@ -26,7 +26,9 @@ demo: $(STAMP)
 	@echo "Figures:  results/demo/figures/"
 	@echo "Manifest: results/demo/manifest.json"
 
+# The suite, after the linter (a lint error fails `make test`, and so CI).
 test: $(STAMP)
+	$(BIN)/ruff check src tests benchmarks
 	$(BIN)/python -m pytest -q
 
 # Benchmarks (benchmarks/README.md): every target at the issue's sizes; pass e.g.
@@ -37,7 +39,7 @@ bench: $(STAMP)
 	$(BIN)/python -m benchmarks --scratch $(BENCH_SCRATCH) $(BENCH_ARGS)
 
 lint: $(STAMP)
-	$(BIN)/ruff check src tests
+	$(BIN)/ruff check src tests benchmarks
 
 # Regenerate the lock after editing requirements.in (needs the venv's uv).
 lock: $(STAMP)

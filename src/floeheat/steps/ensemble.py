@@ -260,7 +260,7 @@ def attribution_rows(ds: xr.Dataset, deployment_id: str) -> pd.DataFrame:
                    "radius_m": float(r), "t_ice": float(t[i, j]),
                    "t_ice_lo": float(t_lo[i, j]),
                    "t_ice_hi": float(t_hi[i, j]),
-                   "t_ice_sd": float(np.nanstd(t_m[:, i, j]))
+                   "t_ice_sd": float(np.sqrt(E.member_variance(t_m[:, i, j])))
                    if np.isfinite(t_m[:, i, j]).any() else float("nan"),
                    "n_members": int(np.isfinite(t_m[:, i, j]).sum())}
             for k, f in enumerate(share["factor"].values):

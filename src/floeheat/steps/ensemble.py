@@ -30,6 +30,8 @@ log = logging.getLogger(__name__)
 #: Columns of attribution.csv before the per-factor shares.
 ATTRIBUTION_KEYS = ("deployment_id", "source", "radius_m", "t_ice", "t_ice_lo", "t_ice_hi",
                     "t_ice_sd", "n_members")
+#: Columns of attribution.csv: the keys, then one share per factor.
+ATTRIBUTION_COLUMNS = (*ATTRIBUTION_KEYS, *(f"share_{f}" for f in E.FACTORS))
 
 
 def _mids(edges) -> np.ndarray:
@@ -244,7 +246,7 @@ def attribution_rows(ds: xr.Dataset, deployment_id: str) -> pd.DataFrame:
     """One deployment's rows of attribution.csv, from its budget Dataset: per source x
     radius with a season value, the interval, the members' spread and each factor's
     share (no rows without an ensemble)."""
-    cols = list(ATTRIBUTION_KEYS) + [f"share_{f}" for f in E.FACTORS]
+    cols = list(ATTRIBUTION_COLUMNS)
     if "variance_share" not in ds:
         return pd.DataFrame(columns=cols)
     share = ds["variance_share"]
@@ -283,7 +285,7 @@ def attribution_table(budget_status: list[str]) -> pd.DataFrame:
     Gathers the rows each budget wrote (``attribution`` in its status record); a record
     without them (a results folder from an earlier version) has its store read.
     """
-    cols = list(ATTRIBUTION_KEYS) + [f"share_{f}" for f in E.FACTORS]
+    cols = list(ATTRIBUTION_COLUMNS)
     parts = []
     for path in sorted(budget_status):
         record = read_status(path)

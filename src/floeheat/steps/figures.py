@@ -5,6 +5,7 @@ deployment's track, last)."""
 
 from __future__ import annotations
 
+import functools
 import logging
 from pathlib import Path
 
@@ -122,8 +123,6 @@ def run_figures(budget_status: list[str], seasonal_csv: str, climatology_csv: st
     """Draw the per-deployment and basin figures into ``out_dir`` (replaced whole); the
     per-deployment figures and those drawn from the tables alone in ``processes``
     worker processes."""
-    import functools
-
     seasonal = pd.read_csv(seasonal_csv)
     clim = pd.read_csv(climatology_csv)
     written: list[str] = []

@@ -118,6 +118,68 @@ def test_mask_and_despike():
     assert d.attrs["n_spikes"] >= 1
 
 
+def _logger_record(seed: int, n_time: int = 300, n_sensor: int = 12) -> np.ndarray:
+    """Synthetic string readings at a logger's 0.0625 K resolution, with gaps, spikes,
+    a dead sensor and runs of identical readings near and far from the neighbours."""
+    rng = np.random.default_rng(seed)
+    t = np.linspace(-6.0, -1.8, n_sensor)[None, :] + rng.normal(0, 0.05, (n_time, n_sensor))
+    t = np.round(t / 0.0625) * 0.0625
+    t[rng.random(t.shape) < 0.05] = np.nan
+    t[rng.random(t.shape) < 0.01] += 4.0          # spikes
+    t[:, 3] = np.where(rng.random(n_time) < 0.7, np.nan, t[:, 3])  # mostly dead
+    t[40:90, 5] = 3.0                             # stuck far from its neighbours
+    t[100:160, 7] = np.nanmedian(t[:, 7])         # stuck where the sensor belongs
+    t[200:230, 9] = -50.0                         # stuck, then a gap inside a run
+    t[215, 9] = np.nan
+    t[-30:, 11] = t[-30, 11]                      # stuck to the end of the record
+    return t
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_mask_bad_sensors_runs_as_a_plain_loop(seed):
+    # reference: runs of identical readings counted with itertools.groupby (Python's
+    # standard library), each judged as mask_bad_sensors' docstring says
+    import itertools
+    raw = _logger_record(seed)
+    out = I.mask_bad_sensors(xr.DataArray(raw, dims=("time", "sensor")), stuck_steps=24,
+                             tolerance_K=0.2)
+    v = raw.copy()
+    v[(v < -60) | (v > 30)] = np.nan
+    v[:, np.mean(~np.isfinite(v), axis=0) > 0.5] = np.nan
+    ref = v.copy()
+    for j in range(v.shape[1]):
+        mates = [k for k in range(j - 2, j + 3) if 0 <= k < v.shape[1] and k != j]
+        i = 0
+        for _, run in itertools.groupby(v[:, j].tolist(), key=lambda x: ("nan", id(x))
+                                        if x != x else x):
+            n = len(list(run))
+            if n >= 24 and np.isfinite(v[i, j]):
+                with np.errstate(all="ignore"):
+                    near = np.array([np.nanmedian(v[k, mates]) if np.isfinite(v[k, mates]).any()
+                                     else np.nan for k in range(i, i + n)])
+                if np.nanmedian(np.abs(v[i:i + n, j] - near)) > 0.2:
+                    ref[i:i + n, j] = np.nan
+            i += n
+    np.testing.assert_array_equal(out.temperature.values, ref)
+    assert np.isnan(ref[40:90, 5]).all() and np.isfinite(ref[101:160, 7]).all()
+
+
+@pytest.mark.parametrize("seed", [0, 1])
+def test_despike_as_xarray_rolling_median(seed):
+    # reference: xarray's own rolling median (DataArray.rolling(...).median()) in the
+    # formula of despike's docstring; sensors first, to check the dimension order
+    da = xr.DataArray(_logger_record(seed).T, dims=("sensor", "time"),
+                      coords={"sensor": [f"s{k:02d}" for k in range(12)]})
+    med = da.rolling(time=7, center=True, min_periods=1).median()
+    dev = abs(da - med)
+    mad = dev.rolling(time=7, center=True, min_periods=1).median()
+    spike = dev > 5.0 * 1.4826 * mad + 0.05
+    out = I.despike(da, window=7, n_mad=5.0, floor_K=0.05)
+    assert out.dims == da.dims and (out.sensor == da.sensor).all()
+    np.testing.assert_array_equal(out.values, da.where(~spike).values)
+    assert out.attrs["n_spikes"] == int(spike.sum()) > 0
+
+
 def test_heated_rise_serves_where_temperature_fails():
     # isothermal ice (gradient 0): the temperature method cannot find the base
     ds, zb = _string(n_hours=24, gradient=0.0, melt_m_day=0.0)

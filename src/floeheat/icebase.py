@@ -129,16 +129,16 @@ def mask_bad_sensors(
                 blk = v[:, idx]
                 has = np.isfinite(blk).any(axis=1)
                 neigh[has, j] = np.nanmedian(blk[has], axis=1)
-    for j in range(ns):
+    for j in range(ns if nt else 0):
         col = v[:, j]
-        start = 0
-        for i in range(1, nt + 1):
-            if i == nt or not (col[i] == col[start]):
-                if i - start >= stuck_steps and np.isfinite(col[start]):
-                    dev = np.abs(col[start:i] - neigh[start:i, j])
-                    if np.nanmedian(dev) > tolerance_K:
-                        v[start:i, j] = np.nan
-                start = i
+        # runs of identical consecutive readings (a missing one is a run of its own)
+        starts = np.flatnonzero(np.r_[True, col[1:] != col[:-1]])
+        ends = np.r_[starts[1:], nt]
+        stuck = (ends - starts >= stuck_steps) & np.isfinite(col[starts])
+        for start, end in zip(starts[stuck], ends[stuck]):
+            dev = np.abs(col[start:end] - neigh[start:end, j])
+            if np.nanmedian(dev) > tolerance_K:
+                v[start:end, j] = np.nan
     masked = ~np.isfinite(v) & ~missing_in
     return xr.Dataset(
         {
@@ -179,13 +179,27 @@ def despike(
     >>> int(despike(t).isnull().sum())
     1
     """
-    med = temperature.rolling(time=window, center=True, min_periods=1).median()
+    med = _rolling_median_in_time(temperature, window)
     dev = abs(temperature - med)
-    mad = dev.rolling(time=window, center=True, min_periods=1).median()
+    mad = _rolling_median_in_time(dev, window)
     spike = dev > n_mad * 1.4826 * mad + floor_K
     out = temperature.where(~spike)
     out.attrs = dict(temperature.attrs, n_spikes=int(spike.sum()))
     return out
+
+
+def _rolling_median_in_time(da: xr.DataArray, window: int) -> xr.DataArray:
+    """Centred rolling median over ``window`` steps of ``time``, missing values left
+    out (at least one needed), as ``da.rolling(time=window, center=True,
+    min_periods=1).median()`` gives it, through pandas' rolling median (a running
+    median in C; xarray without bottleneck takes the median of every window apart)."""
+    dims = ("time", *(d for d in da.dims if d != "time"))
+    values = np.asarray(da.transpose(*dims).values)
+    dtype = values.dtype if values.dtype.kind == "f" else np.dtype(float)
+    flat = values.reshape(values.shape[0], -1)
+    med = pd.DataFrame(flat).rolling(window, center=True, min_periods=1).median()
+    out = med.to_numpy(dtype=float).astype(dtype, copy=False).reshape(values.shape)
+    return da.transpose(*dims).copy(data=out).transpose(*da.dims)
 
 
 def _bottom_from_rise(r: np.ndarray, z: np.ndarray, n_water: int, rise_factor: float) -> float:

@@ -36,3 +36,55 @@ def test_scenes_out_of_reach_are_left_out_exactly_as_the_full_coverage_would():
     full = full[full["footprint_coverage"] >= 0.1]
     assert len(fast) > 0 and fast["scene_id"].nunique() < len(fp)
     pd.testing.assert_frame_equal(fast.reset_index(drop=True), full.reset_index(drop=True))
+
+
+class _Handle:
+    """A stand-in for an open scene that records its closing."""
+
+    def __init__(self, log: list, name: str):
+        self.log, self.name = log, name
+        log.append(("open", name))
+
+    def close(self):
+        self.log.append(("close", self.name))
+
+
+def test_shared_scenes_open_each_scene_once_and_close_it_after_its_last_use():
+    from collections import Counter
+
+    from floeheat.steps.scenes import SharedScenes
+
+    log: list = []
+    shared = SharedScenes(Counter({"a": 3, "b": 1}))
+    for _ in range(3):
+        with shared.scene("a", lambda: _Handle(log, "a")):
+            pass
+    with shared.scene("b", lambda: _Handle(log, "b")):
+        pass
+    assert log == [("open", "a"), ("close", "a"), ("open", "b"), ("close", "b")]
+    assert shared.n_opened == 2
+    # a scene nobody counted (a deployment run on its own) is closed at once
+    with shared.scene("c", lambda: _Handle(log, "c")):
+        pass
+    assert log[-1] == ("close", "c")
+
+
+def test_shared_scenes_close_a_failed_handle_and_keep_no_more_than_max_open():
+    from collections import Counter
+
+    import pytest
+
+    from floeheat.steps.scenes import SharedScenes
+
+    log: list = []
+    shared = SharedScenes(Counter({"a": 2, "b": 2, "c": 2}), max_open=2)
+    for key in "abc":
+        with shared.scene(key, lambda key=key: _Handle(log, key)):
+            pass
+    # a and b are kept for their second use; c finds no room and is closed
+    assert log[-2:] == [("open", "c"), ("close", "c")]
+    with pytest.raises(RuntimeError), shared.scene("a", lambda: _Handle(log, "a2")):
+        raise RuntimeError("a damaged window")
+    assert log[-1] == ("close", "a")      # the kept handle, closed on the failure
+    shared.close()                         # b: counted use never made
+    assert log[-1] == ("close", "b") and shared.n_opened == 3

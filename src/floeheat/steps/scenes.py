@@ -19,6 +19,8 @@ served by the mask. Column ``content`` of the fractions and floe tables, and the
 from __future__ import annotations
 
 import logging
+from collections import Counter
+from contextlib import contextmanager
 from pathlib import Path
 
 import numpy as np
@@ -32,8 +34,8 @@ from floeheat.steps.status import StageFailed, atomic_path, read_status, run_sta
 
 __all__ = ["MATCH_COLUMNS", "FRACTION_COLUMNS", "FLOE_COLUMNS", "FOOTPRINT_COLUMNS",
            "run_scene_footprints",
-           "match_track", "run_match_scenes", "run_match_part", "run_radar", "position_at",
-           "positions_at", "read_track"]
+           "match_track", "run_match_scenes", "run_match_part", "run_radar", "run_radar_part",
+           "SharedScenes", "scene_uses", "position_at", "positions_at", "read_track"]
 
 log = logging.getLogger(__name__)
 
@@ -243,20 +245,78 @@ def _open_classified(store: Path):
     return open_classified(store)
 
 
+#: At most this many scenes stay open between the deployments of a radar job (file
+#: handles: well under a process's usual limit of 1024 open files).
+MAX_SHARED_SCENES = 64
+
+
+class SharedScenes:
+    """Scene handles kept open between the deployments of one radar job that read the
+    same scene, so that each is opened once per job rather than once per deployment
+    (opening a scene reads its header and CRS, which costs about as much as reading a
+    buoy's window). ``uses`` counts, per ``(content, label)`` of :func:`_inputs`, the
+    deployments that will read it; a handle is closed after its last use, when it
+    fails, or at once when ``max_open`` are already kept. Reading from a kept handle
+    gives the same pixels as from a fresh one.
+
+    Examples
+    --------
+    >>> class Handle:
+    ...     def close(self): print("closed")
+    >>> shared = SharedScenes(Counter({("mask", "a"): 2}))
+    >>> with shared.scene(("mask", "a"), Handle) as h1: pass
+    >>> with shared.scene(("mask", "a"), lambda: None) as h2: pass
+    closed
+    >>> h1 is h2, shared.n_opened
+    (True, 1)
+    """
+
+    def __init__(self, uses: Counter | None = None, max_open: int = MAX_SHARED_SCENES):
+        self._left = Counter(uses or {})
+        self._kept: dict = {}
+        self.max_open = int(max_open)
+        self.n_opened = 0
+
+    @contextmanager
+    def scene(self, key, opener):
+        handle = self._kept.pop(key, None)
+        if handle is None:
+            handle = opener()
+            self.n_opened += 1
+        self._left[key] -= 1
+        try:
+            yield handle
+        except BaseException:
+            handle.close()
+            raise
+        if self._left[key] > 0 and len(self._kept) < self.max_open:
+            self._kept[key] = handle
+        else:
+            handle.close()
+
+    def close(self) -> None:
+        """Close every handle still kept (a use counted but never made)."""
+        for handle in self._kept.values():
+            handle.close()
+        self._kept.clear()
+
+
 def _fractions(archive: Path, track: pd.DataFrame, matched: list[dict], radii_m: list[float],
                coverage_threshold: float, mask_codes: dict, classified: dict | None = None,
-               floe_radius_m: float | None = None) -> tuple[pd.DataFrame, pd.DataFrame]:
+               floe_radius_m: float | None = None,
+               shared: SharedScenes | None = None) -> tuple[pd.DataFrame, pd.DataFrame]:
     from floeheat import floes  # scipy.ndimage: only the radar stage pays its import
 
     radii = np.asarray(sorted(radii_m), dtype=float)
     floe_r = float(min(floe_radius_m or radii[-1], radii[-1]))
     rows, floe_rows = [], []
     inputs = _inputs(archive, matched, classified or {}, mask_codes)
+    shared = shared if shared is not None else SharedScenes()
     lats, lons = positions_at(track, [_scene_time(i[1]) for i in inputs])
     for (label, time, content, opener), lat, lon in zip(inputs, lats, lons):
         if not np.isfinite(lat):
             continue
-        with opener() as sc:
+        with shared.scene((content, label), opener) as sc:
             x, y = _projected(np.array([lat]), np.array([lon]), sc.crs)
             radii_proj = openwater.projected_radius(radii, sc.crs, lon, lat)
             window = openwater.circle_window(sc.transform, sc.shape, x[0], y[0],
@@ -283,14 +343,15 @@ def _fractions(archive: Path, track: pd.DataFrame, matched: list[dict], radii_m:
 
 def run_radar(archive: str, insitu_status: str, matches_csv: str, status_path: str, *,
               radii_m: list[float], coverage_threshold: float, mask_codes: dict,
-              classified: dict | None = None, floe_radius_m: float | None = None) -> dict:
+              classified: dict | None = None, floe_radius_m: float | None = None,
+              shared: SharedScenes | None = None) -> dict:
     """Open-water fractions and floe context of one deployment from its matched scenes.
 
     ``classified`` maps backscatter scene_id -> its classified store (stage classify);
-    ``floe_radius_m`` is the circle of the floe context (at most the largest radius).
+    ``floe_radius_m`` is the circle of the floe context (at most the largest radius);
+    ``shared``: scene handles shared with the other deployments of the job.
     """
-    matched = pd.read_csv(matches_csv, dtype={"band": str, "scene_id": str},
-                          keep_default_na=False).to_dict(orient="records")
+    matched = _read_matches(matches_csv)
     status = Path(status_path)
     work_dir = status.parent.parent / "work"
     dep = status.parent.parent.name
@@ -300,7 +361,7 @@ def run_radar(archive: str, insitu_status: str, matches_csv: str, status_path: s
         track = read_track(record["track"])
         table, floe_table = _fractions(Path(archive), track, matched, radii_m,
                                        coverage_threshold, mask_codes, classified,
-                                       floe_radius_m)
+                                       floe_radius_m, shared)
         missing = sorted({m["scene_id"] for m in matched if m["content"] == "backscatter"
                           and m["scene_id"] not in (classified or {})})
         if missing:
@@ -325,3 +386,45 @@ def run_radar(archive: str, insitu_status: str, matches_csv: str, status_path: s
                 "radar_input": " and ".join(used) or "none"}
 
     return run_stage("radar", dep, status, work, upstream=[Path(insitu_status)])
+
+
+def _read_matches(matches_csv: str | Path) -> list[dict]:
+    return pd.read_csv(matches_csv, dtype={"band": str, "scene_id": str},
+                       keep_default_na=False).to_dict(orient="records")
+
+
+def scene_uses(archive: str | Path, matches_csvs: list, classified: dict | None,
+               mask_codes: dict) -> Counter:
+    """How many of the deployments (their matches.csv) read each scene, keyed as
+    :class:`SharedScenes` keys them; a matches.csv that cannot be read counts none."""
+    uses: Counter = Counter()
+    for path in matches_csvs:
+        try:
+            matched = _read_matches(path)
+        except (OSError, ValueError, pd.errors.ParserError):
+            continue
+        uses.update((content, label) for label, _, content, _ in
+                    _inputs(Path(archive), matched, classified or {}, mask_codes))
+    return uses
+
+
+def run_radar_part(archive: str, insitu_status: dict[str, str], matches_csv: dict[str, str],
+                   status: dict[str, str], record_path: str, *, classified: dict | None = None,
+                   mask_codes: dict, **settings) -> dict:
+    """Stage radar for the deployments of a part (:func:`floeheat.steps.parts.run_part`),
+    one after another, each scene opened once for all of them (:class:`SharedScenes`);
+    ``settings`` are those of :func:`run_radar`. A member whose matches cannot be read
+    counts no uses; its own run then records the failure."""
+    from floeheat.steps.parts import run_part
+
+    uses = scene_uses(archive, list(matches_csv.values()), classified, mask_codes)
+    shared = SharedScenes(uses)
+    try:
+        record = run_part("radar", status, lambda dep: run_radar(
+            archive, insitu_status[dep], matches_csv[dep], status[dep], classified=classified,
+            mask_codes=mask_codes, shared=shared, **settings), record_path)
+    finally:
+        shared.close()
+    log.info("radar: %d scene files opened for %d readings", shared.n_opened,
+             sum(uses.values()))
+    return record

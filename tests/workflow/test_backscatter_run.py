@@ -58,3 +58,25 @@ def test_outputs_say_the_fractions_came_from_classified_backscatter(backscatter_
             r"-h[hv]$", "", regex=True).unique())
     agreement = pd.read_csv(tiny_run / "tables" / "classification_agreement.csv")
     assert len(agreement) == 2 and (agreement["agreement"] > 0.9).all()
+
+
+def test_changing_a_classifier_setting_reruns_classification_and_radar(backscatter_run,
+                                                                        tmp_path, run_workflow):
+    # the classified stores reach the radar jobs through checkpoint match_scenes; a new
+    # classification must rerun it (Snakemake follows what a checkpoint feeds a job only
+    # when the checkpoint runs), then radar, and never the in-situ stage
+    archive, results = backscatter_run
+    settings = tmp_path / "classify.yaml"
+    settings.write_text("classify:\n  speck_max_px: 0\n  method: multiotsu\n")
+    out = run_workflow("-n", "--configfile", "config/config.yaml", str(settings), "--config",
+                       f"archive={archive}", f"results={results}").stdout
+    jobs = {}
+    for line in out.split("Job stats:")[-1].splitlines():
+        parts = line.split()
+        if len(parts) == 2 and parts[1].isdigit() and parts[0] != "total":
+            jobs[parts[0]] = int(parts[1])
+    n = len(pd.read_csv(archive / "deployments.csv"))
+    assert jobs.get("classify", 0) >= 1, (jobs, out[-3000:])
+    assert jobs.get("match_scenes") == n and jobs.get("radar") == n, jobs
+    assert "insitu" not in jobs, jobs
+

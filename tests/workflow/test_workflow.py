@@ -139,6 +139,23 @@ def test_changing_a_budget_setting_keeps_every_scene_fraction(tiny_run, tiny_arc
     assert {"tables", "figures", "manifest"} <= set(jobs)
 
 
+@pytest.mark.parametrize("setting", ["floe_radius_m: 8000.0",
+                                     "mask_codes: {water: 0, ice: 1, nodata: 254}"])
+def test_changing_a_radar_only_setting_reruns_the_radar_stage(tiny_run, tiny_archive, tmp_path,
+                                                              run_workflow, setting):
+    # settings that only the radar jobs use (those behind checkpoint match_scenes):
+    # Snakemake looks at such a job's params only when the checkpoint runs, so these
+    # must rerun the checkpoint, then radar, and leave the in-situ stage alone
+    override = tmp_path / "radar.yaml"
+    override.write_text(f"radar:\n  {setting}\n")
+    out = run_workflow("-n", "--configfile", "config/config.yaml", str(override), "--config",
+                       f"archive={tiny_archive}", f"results={tiny_run}").stdout
+    jobs = _jobs(out)
+    n = len(pd.read_csv(tiny_archive / "deployments.csv"))
+    assert jobs.get("match_scenes") == n and jobs.get("radar") == n, (jobs, out[-3000:])
+    assert "insitu" not in jobs and "forcing_store" not in jobs, jobs
+
+
 def test_changing_one_deployment_file_reruns_that_chain_only(tiny_run, tiny_archive,
                                                             run_workflow):
     import netCDF4

@@ -242,6 +242,11 @@ def classify_batches():
     return batches(scene_table(), config["classify"]["scenes_per_job"])
 
 
+def all_classify_outputs(wildcards):
+    """Every classification batch's folder of stores (rule classify)."""
+    return [f"{RESULTS}/classified/{name}" for name in classify_batches()]
+
+
 def classified_store(key, batch_of):
     return f"{RESULTS}/classified/{batch_of[key]}/{key}.zarr"
 

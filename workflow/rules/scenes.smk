@@ -28,6 +28,12 @@ checkpoint match_scenes:
         footprints=f"{RESULTS}/index/footprints.csv",
         insitu=part_record("insitu"),
         sheet=SHEET,
+        # Unused here, like radar_only below: Snakemake 9.27 looks at what a job fed by
+        # a checkpoint (radar) gets from it, and at its params, only when the checkpoint
+        # runs in the same invocation. So whatever should rerun radar reruns this
+        # checkpoint: a new classification, or a change of the radar stage's own
+        # settings (DEVELOPERS.md, "Rerun only what changed").
+        classified=all_classify_outputs,
     output:
         matches=f"{RESULTS}/parts/match_scenes/{{part}}.csv",
     params:
@@ -35,6 +41,8 @@ checkpoint match_scenes:
         matches=part_matches,
         radii_m=config["radar"]["radii_m"],
         coverage_threshold=config["radar"]["coverage_threshold"],
+        radar_only={"mask_codes": config["radar"]["mask_codes"],
+                    "floe_radius_m": config["radar"]["floe_radius_m"]},
     log:
         f"{RESULTS}/logs/match_scenes/{{part}}.log",
     threads: 1

@@ -298,3 +298,23 @@ def test_truncated_netcdf_scene_names_the_file(tmp_path):
     with pytest.raises(ArchiveError, match=r"t\.nc: cannot be read as NetCDF, it may be "
                                            r"truncated"):
         open_scene(tmp_path / "t.nc", "mask")
+
+
+def test_several_codes_per_class_from_the_config(tmp_path):
+    # archive-format.md: the mask coding is overridable in config; a class may have
+    # several codes (e.g. land and outside-the-swath both no data)
+    import yaml
+    from jsonschema import Draft202012Validator
+
+    schema = yaml.safe_load((Path(__file__).resolve().parents[1] / "workflow" / "schemas" /
+                             "config.schema.yaml").read_text())
+    radar = schema["properties"]["radar"]
+    codes = {"water": 7, "ice": [3, 4], "nodata": [9, 250]}
+    Draft202012Validator(radar).validate({"mask_codes": codes})
+    with pytest.raises(Exception, match="is not valid"):
+        Draft202012Validator(radar).validate({"mask_codes": {"water": [], "ice": 1,
+                                                             "nodata": 255}})
+    path = vf.scene_netcdf_mask(tmp_path / "m.nc", codes=(7, 3, 9))
+    with open_scene(path, "mask", mask_codes=codes) as scene:
+        full = scene.read_window(slice(None), slice(None))
+    assert np.all(full[0] == 255) and np.all(full[1:, 0] == 0) and np.all(full[1:, 1:] == 1)

@@ -56,6 +56,7 @@ __all__ = [
     "interval",
     "member_variance",
     "variance_shares",
+    "shares_of_variances",
     "bootstrap_median_with_members",
 ]
 
@@ -641,10 +642,23 @@ def variance_shares(one_at_a_time: Mapping[str, np.ndarray], axis: int = 0) -> d
     >>> {k: round(float(v), 2) for k, v in s.items()}
     {'a': 0.8, 'b': 0.2}
     """
-    var = {k: member_variance(v, axis=axis) for k, v in one_at_a_time.items()}
-    total = sum(var.values())
+    return shares_of_variances({k: member_variance(v, axis=axis)
+                                for k, v in one_at_a_time.items()})
+
+
+def shares_of_variances(variances: Mapping[str, np.ndarray]) -> dict:
+    """Each factor's one-at-a-time variance over their sum (NaN where all are 0), for
+    callers that keep the variances too (:func:`variance_shares`).
+
+    Examples
+    --------
+    >>> s = shares_of_variances({"a": np.array(3.0), "b": np.array(1.0)})
+    >>> {k: float(v) for k, v in s.items()}
+    {'a': 0.75, 'b': 0.25}
+    """
+    total = sum(variances.values())
     with np.errstate(all="ignore"):
-        return {k: np.where(total > 0, v / total, np.nan) for k, v in var.items()}
+        return {k: np.where(total > 0, v / total, np.nan) for k, v in variances.items()}
 
 
 def bootstrap_median_with_members(values, member_values, groups, n_boot: int,

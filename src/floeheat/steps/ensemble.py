@@ -136,7 +136,8 @@ def budget_ensemble(ds: xr.Dataset, settings: dict, *, deployment_id: str,
     joint = E.budget_members(ds, draws, **kwargs)
     alone = {f: E.budget_members(ds, draws, only=f, **kwargs)["t_season"].values
              for f in varied}
-    shares = E.variance_shares(alone) if alone else {}
+    var_alone = {f: E.member_variance(alone[f], axis=0) for f in varied}
+    shares = E.shares_of_variances(var_alone) if alone else {}
 
     out = ds.copy()
     out = out.assign_coords(member=("member", draws["member"].values))
@@ -170,7 +171,7 @@ def budget_ensemble(ds: xr.Dataset, settings: dict, *, deployment_id: str,
                                {"units": "1", "long_name": "members with a season value"})
     if varied:
         out = out.assign_coords(factor=("factor", np.array(varied, dtype=str)))
-        var = np.stack([E.member_variance(alone[f], axis=0) for f in varied])
+        var = np.stack([var_alone[f] for f in varied])
         out["variance_share"] = (("factor", "source", "radius"),
                                  np.stack([shares[f] for f in varied]), {
                                      "units": "1",
